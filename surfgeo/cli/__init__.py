@@ -1,0 +1,1 @@
+"""The ``surfgeo`` command line: a thin layer over the Python API."""

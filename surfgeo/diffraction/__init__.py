@@ -1,0 +1,1 @@
+"""Beams and kinematic intensities: from a surface model and an energy to diffraction beams."""

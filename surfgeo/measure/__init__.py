@@ -1,0 +1,1 @@
+"""Measured patterns: spot finding, calibration, matching and indexing. Never builds structures."""

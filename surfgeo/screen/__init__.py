@@ -1,0 +1,1 @@
+"""Detector geometry: where a beam of given parallel momentum lands on a screen or detector."""

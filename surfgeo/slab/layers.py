@@ -1,0 +1,50 @@
+"""Grouping the atoms of a slab into atomic layers along the surface normal (+z)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: Default height tolerance (Angstrom): atoms closer than this in z share a layer.
+LAYER_TOL = 0.3
+
+
+def group_layers(heights, tol: float = LAYER_TOL) -> list[np.ndarray]:
+    """Split atoms into layers by height.
+
+    Atoms are sorted by height and a new layer starts wherever the gap to the next atom
+    exceeds ``tol``, so a buckled layer stays one layer as long as no internal gap exceeds
+    ``tol``.
+
+    Parameters
+    ----------
+    heights : array_like, shape (N,) or (N, 3)
+        z coordinates in Angstrom, or Cartesian positions (the last column is used).
+    tol : float
+        Largest height gap (Angstrom) inside one layer.
+
+    Returns
+    -------
+    list of ndarray of int
+        Atom indices of each layer, from the bottom layer to the top layer.
+
+    Examples
+    --------
+    >>> [l.tolist() for l in group_layers([0.0, 2.0, 0.05, 2.1])]
+    [[0, 2], [1, 3]]
+    """
+    z = np.asarray(heights, dtype=float)
+    if z.ndim == 2:
+        z = z[:, -1]
+    if z.size == 0:
+        return []
+    order = np.argsort(z, kind="stable")
+    breaks = np.nonzero(np.diff(z[order]) > tol)[0] + 1
+    return [np.sort(part) for part in np.split(order, breaks)]
+
+
+def layer_heights(heights, layers: list[np.ndarray]) -> np.ndarray:
+    """Mean height (Angstrom) of each layer given by :func:`group_layers`."""
+    z = np.asarray(heights, dtype=float)
+    if z.ndim == 2:
+        z = z[:, -1]
+    return np.array([z[idx].mean() for idx in layers])

@@ -1,0 +1,1 @@
+"""Multi-step jobs (the demo, reports) built from the layers below."""
