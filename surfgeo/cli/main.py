@@ -1,14 +1,17 @@
 """Entry point of the ``surfgeo`` command.
 
 Each subcommand lives in its own module ``surfgeo/cli/<name>.py`` that defines
-``register(subparsers)``; the module must stay cheap to import (import numerical and
-plotting code inside the function that runs the command).
+``ORDER`` (an integer: where ``surfgeo --help`` lists it) and ``register(subparsers,
+common)``. Modules are discovered automatically; names starting with ``_`` and ``main`` are
+skipped. A command module must stay cheap to import (import numerical and plotting code
+inside the function that runs the command).
 """
 
 from __future__ import annotations
 
 import argparse
 import importlib
+import pkgutil
 import sys
 import traceback
 from collections.abc import Sequence
@@ -16,8 +19,17 @@ from collections.abc import Sequence
 from surfgeo import __version__
 from surfgeo.errors import InputError, SurfgeoError
 
-#: Subcommand modules, in the order ``surfgeo --help`` lists them.
-COMMANDS: tuple[str, ...] = ()
+
+def command_modules() -> list:
+    """The subcommand modules of ``surfgeo.cli``, sorted by their ``ORDER``."""
+    import surfgeo.cli as pkg
+
+    mods = []
+    for info in pkgutil.iter_modules(pkg.__path__):
+        if info.name.startswith("_") or info.name == "main":
+            continue
+        mods.append(importlib.import_module(f"surfgeo.cli.{info.name}"))
+    return sorted(mods, key=lambda m: (getattr(m, "ORDER", 100), m.__name__))
 
 EPILOG = """\
 example:
@@ -50,8 +62,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"surfgeo {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in COMMANDS:
-        module = importlib.import_module(f"surfgeo.cli.{name}")
+    for module in command_modules():
         module.register(sub, common)
     return parser
 
