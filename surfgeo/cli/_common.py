@@ -38,3 +38,62 @@ def add_output_options(parser: argparse.ArgumentParser, plot: bool = False) -> N
     if plot:
         parser.add_argument("--plot", metavar="FILE", help="write a figure (PNG or SVG, from the ending)")
     parser.add_argument("--force", action="store_true", help="overwrite existing output files")
+
+
+def add_superstructure_options(parser: argparse.ArgumentParser, wood_positional: bool = True) -> None:
+    """A superstructure given either as ``--matrix M11 M12 M21 M22`` or in Wood notation.
+
+    The Wood form is a positional argument (``wood_positional=True``, quote it when it holds
+    spaces: ``"(sqrt3 x sqrt3)R30"``) or the option ``--wood TEXT``. Both store into
+    ``args.wood``; the matrix goes to ``args.matrix``. Use :func:`resolve_superstructure`.
+    """
+    parser.add_argument(
+        "--matrix", nargs="+", metavar="M", default=None,
+        help="superstructure matrix M11 M12 M21 M22 (b_i = sum_j M_ij a_j): integers, fractions "
+        "such as 1/2, or decimals (write negative fractions as decimals, e.g. -0.5)",
+    )
+    wood_help = (
+        "Wood notation, e.g. '(2x1)', 'c(4x2)', '(sqrt3 x sqrt3)R30' or '(√3×√3)R30°' "
+        "(quote it; spaces inside are fine)"
+    )
+    if wood_positional:
+        parser.add_argument("wood", nargs="?", default=None, metavar="WOOD", help=wood_help)
+    else:
+        parser.add_argument("--wood", default=None, metavar="WOOD", help=wood_help)
+
+
+def resolve_superstructure(args: argparse.Namespace, lattice: Lattice2D, required: bool = True):
+    """The :class:`~surfgeo.lattice.Superstructure` named by ``--matrix`` or the Wood argument.
+
+    Returns None when neither was given and ``required`` is false.
+
+    Raises
+    ------
+    NotationError
+        When both or (if required) neither were given, when ``--matrix`` does not have four
+        numbers, or when the matrix or the Wood notation is invalid.
+    """
+    from surfgeo.errors import NotationError
+    from surfgeo.lattice import Superstructure
+
+    matrix = getattr(args, "matrix", None)
+    wood = getattr(args, "wood", None)
+    if matrix is not None and wood is not None:
+        raise NotationError(
+            f"give the superstructure either as --matrix or as Wood notation, not both (got {wood!r} too)."
+        )
+    if matrix is not None:
+        if len(matrix) != 4:
+            raise NotationError(
+                f"--matrix takes exactly four numbers M11 M12 M21 M22, got {len(matrix)}: "
+                f"{' '.join(matrix)}."
+            )
+        return Superstructure(lattice, matrix)
+    if wood is not None:
+        return Superstructure.from_wood(lattice, wood)
+    if required:
+        raise NotationError(
+            "give the superstructure as Wood notation such as \"(sqrt3 x sqrt3)R30\" or as "
+            "--matrix M11 M12 M21 M22."
+        )
+    return None
