@@ -89,16 +89,19 @@ def read_structure(path: str | os.PathLike, frame: int | str | None = -1, format
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            atoms = ase.io.read(p, index=index, format=format)
+            if index in (0, -1):
+                atoms = ase.io.read(p, index=index, format=format)
+            else:
+                # ASE does not check every index (a negative one may silently wrap): count first
+                frames = ase.io.read(p, index=":", format=format)
+                if not -len(frames) <= index < len(frames):
+                    raise FileFormatError(
+                        f"{p} holds {len(frames)} frame(s), so there is no frame {index}; "
+                        f"use 0 to {len(frames) - 1}, or -1 for the last."
+                    )
+                atoms = frames[index]
     except SurfgeoError:
         raise
-    except IndexError:
-        count = _count_frames(p, format)
-        have = f"holds {count} frame(s)" if count is not None else "does not hold that many frames"
-        raise FileFormatError(
-            f"{p} {have}; frame {index} does not exist "
-            f"(use 0 to {count - 1 if count else 'N-1'}, or -1 for the last)."
-        ) from None
     except UnknownFileTypeError as exc:
         raise FileFormatError(
             f"cannot tell the format of {p} ({_short(exc)}); name the ASE format with --format "
@@ -117,17 +120,6 @@ def read_structure(path: str | os.PathLike, frame: int | str | None = -1, format
     if len(atoms) == 0:
         raise FileFormatError(f"{p} holds a structure without atoms.")
     return atoms
-
-
-def _count_frames(p: Path, format: str | None) -> int | None:
-    import ase.io
-
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            return len(ase.io.read(p, index=":", format=format))
-    except Exception:  # noqa: BLE001 - only for the error message
-        return None
 
 
 def _read_model(p: Path):

@@ -18,6 +18,7 @@ it by convergence tests.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -193,7 +194,13 @@ def is_symmetric_slab(atoms, symprec: float = 0.01) -> bool:
     cell = np.asarray(atoms.cell, dtype=float)
     if abs(np.linalg.det(cell)) < 1e-9:
         raise StructureError("the slab needs a full 3D cell (with vacuum) to test its symmetry.")
-    data = spglib.get_symmetry((cell, atoms.get_scaled_positions(wrap=True), atoms.numbers), symprec=symprec)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DeprecationWarning)  # spglib's error-handling transition notice
+        try:
+            data = spglib.get_symmetry((cell, atoms.get_scaled_positions(wrap=True), atoms.numbers),
+                                       symprec=symprec)
+        except Exception:  # noqa: BLE001 - newer spglib raises where older returned None
+            data = None
     if not data:
         return False
     n = surface_normal(cell)

@@ -106,8 +106,8 @@ def _minimum_image_2d(d: np.ndarray, lattice: np.ndarray) -> np.ndarray:
 def _formula(numbers) -> str:
     from ase.data import chemical_symbols
 
-    counts = Counter(int(z) for z in numbers)
-    return " ".join(f"{chemical_symbols[z]}{counts[z]}" for z in sorted(counts))
+    counts = Counter(chemical_symbols[int(z)] for z in numbers)
+    return " ".join(f"{s}{counts[s]}" for s in sorted(counts))
 
 
 def check_same_system(reference, relaxed, cell_tol: float = CELL_TOL) -> None:
