@@ -317,3 +317,22 @@ def test_report_table_and_dict():
     d = report.to_dict()
     assert d["spacings"][0]["label"] == "d12" and d["adsorbates"][0]["symbol"] == "O"
     assert len(d["displacements"]) == len(ref)
+
+
+def test_adatoms_marked_by_the_model_builder(tmp_path):
+    import ase.io
+
+    slab = fcc111("Pt", (2, 2, 4), a=A_PT, vacuum=7.0)
+    add_adsorbate(slab, "Pt", 2.2, "hcp")  # a Pt adatom: same species as the substrate
+    slab.info.pop("adsorbate_info", None)
+    assert not find_adsorbates(slab).any()  # species alone cannot tell
+    mark = np.zeros(len(slab), dtype=int)
+    mark[-1] = 1
+    slab.arrays["surfgeo_adsorbate"] = mark  # as surfgeo.slab.adsorbates records molecules
+    ase.io.write(tmp_path / "m.extxyz", slab)
+    back = ase.io.read(tmp_path / "m.extxyz")  # the mark survives extended XYZ
+    report = analyse_relaxation(back, slab.copy())
+    (ads,) = report.adsorbates
+    # Source: ASE's add_adsorbate "hcp" site and height.
+    assert ads.site == "hcp hollow" and ads.height == pytest.approx(2.2, abs=1e-6)
+    assert len(report.layers) == 4

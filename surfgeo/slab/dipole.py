@@ -100,20 +100,39 @@ def slab_heights(atoms) -> np.ndarray:
     """
     cell = np.asarray(atoms.cell, dtype=float)
     n = surface_normal(cell)
-    pos = np.asarray(atoms.positions, dtype=float)
-    raw = pos @ n
+    raw = np.asarray(atoms.positions, dtype=float) @ n
     extent = float(cell[2] @ n) if np.linalg.norm(cell[2]) > 0 else 0.0
-    if len(atoms) < 2 or extent <= 1e-9:
-        return raw
-    s = raw / extent  # fractional coordinate along c (a1, a2 do not contribute)
+    return raw + unwrap_shifts(raw, extent) * extent
+
+
+def unwrap_shifts(heights, extent: float) -> np.ndarray:
+    """Whole numbers of ``c`` vectors to add to each atom so that the slab is contiguous.
+
+    Parameters
+    ----------
+    heights : array_like, shape (N,)
+        Heights along the normal, Angstrom.
+    extent : float
+        ``c . n``, the period along the normal (Angstrom); 0 for no period.
+
+    Returns
+    -------
+    ndarray of float, shape (N,)
+        Integer-valued shifts. The slab is taken to be the complement of the largest empty
+        gap; among the equivalent choices the one closest to the input heights is returned
+        (all zeros when nothing is wrapped).
+    """
+    h = np.asarray(heights, dtype=float)
+    if extent <= 1e-9 or len(h) < 2:
+        return np.zeros(len(h))
+    s = h / extent  # fractional coordinate along c (a1, a2 do not contribute)
     w = s - np.floor(s)
     order = np.sort(w)
     gaps = np.diff(np.concatenate([order, [order[0] + 1.0]]))
-    k = int(np.argmax(gaps))
-    start = order[(k + 1) % len(order)]  # lowest atom of the slab, fractional
+    start = order[(int(np.argmax(gaps)) + 1) % len(order)]  # lowest atom of the slab, fractional
     u = (w - start) % 1.0 + start
-    shift = np.round(np.mean(s - u))
-    return (u + shift) * extent
+    u += np.round(np.mean(s - u))
+    return np.round(u - s)
 
 
 def vacuum_gap(atoms) -> VacuumGap:
@@ -256,4 +275,12 @@ def dipole_advice(atoms, symmetric: bool | None = None, symprec: float = 0.01) -
     )
 
 
-__all__ = ["DipoleAdvice", "VacuumGap", "dipole_advice", "slab_heights", "surface_normal", "vacuum_gap"]
+__all__ = [
+    "DipoleAdvice",
+    "VacuumGap",
+    "dipole_advice",
+    "slab_heights",
+    "surface_normal",
+    "unwrap_shifts",
+    "vacuum_gap",
+]

@@ -36,7 +36,7 @@ import numpy as np
 
 from surfgeo.errors import InputError, StructureError
 from surfgeo.lattice import Lattice2D
-from surfgeo.slab.dipole import surface_normal
+from surfgeo.slab.dipole import surface_normal, unwrap_shifts
 from surfgeo.slab.layers import LAYER_TOL, group_layers
 
 #: Largest displacement (Angstrom) accepted before the two structures are declared different.
@@ -73,20 +73,6 @@ class SurfaceFrame:
     def local(self, positions) -> np.ndarray:
         """Positions in (e1, e2, n) coordinates."""
         return np.asarray(positions, dtype=float) @ self.axes.T
-
-
-def _unwrap_shifts(h: np.ndarray, extent: float) -> np.ndarray:
-    """Integer multiples of c to add to each atom so that the slab is contiguous along n."""
-    if extent <= 1e-9 or len(h) < 2:
-        return np.zeros(len(h))
-    s = h / extent
-    w = s - np.floor(s)
-    order = np.sort(w)
-    gaps = np.diff(np.concatenate([order, [order[0] + 1.0]]))
-    start = order[(int(np.argmax(gaps)) + 1) % len(order)]
-    u = (w - start) % 1.0 + start
-    u += np.round(np.mean(s - u))
-    return np.round(u - s)
 
 
 def _minimum_image_2d(d: np.ndarray, lattice: np.ndarray) -> np.ndarray:
@@ -165,10 +151,10 @@ def _local_positions(reference, relaxed) -> tuple[np.ndarray, np.ndarray, Surfac
 
     p = fref.local(reference.positions)
     cp = fref.local(fref.c)
-    p += _unwrap_shifts(p[:, 2], fref.extent)[:, None] * cp
+    p += unwrap_shifts(p[:, 2], fref.extent)[:, None] * cp
     q = to_ref(frel.local(relaxed.positions))
     cq = to_ref(frel.local(frel.c)[None, :])[0]
-    q += _unwrap_shifts(q[:, 2], frel.extent)[:, None] * cq
+    q += unwrap_shifts(q[:, 2], frel.extent)[:, None] * cq
     if frel.extent > 1e-9:
         q -= np.round((q[:, 2].mean() - p[:, 2].mean()) / frel.extent) * cq
     return p, q, fref
@@ -356,6 +342,22 @@ def _bulk_species(meta) -> set[str] | None:
         return None
 
 
+#: Per-atom arrays that mark adsorbate molecules and overlayer films (number > 0) in slabs
+#: built by surfgeo's surface models (surfgeo.slab.supercell.ADSORBATE_KEY, SUBLATTICE_KEY).
+MARK_ARRAYS = ("surfgeo_adsorbate", "surfgeo_sublattice")
+
+
+def _marked_adsorbates(atoms) -> np.ndarray | None:
+    """Atoms marked as adsorbates or overlayer by the model builder, or None if nothing is marked."""
+    mask = np.zeros(len(atoms), dtype=bool)
+    found = False
+    for key in MARK_ARRAYS:
+        if key in atoms.arrays:
+            found = True
+            mask |= np.asarray(atoms.arrays[key]).reshape(len(atoms), -1)[:, 0] > 0
+    return mask if found and mask.any() else None
+
+
 def find_adsorbates(atoms, heights: np.ndarray | None = None, select=None,
                     tol: float = LAYER_TOL) -> np.ndarray:
     """Boolean mask of the adsorbate atoms of a slab.
@@ -367,11 +369,13 @@ def find_adsorbates(atoms, heights: np.ndarray | None = None, select=None,
         Unwrapped heights along the normal (Angstrom); computed when not given.
     select : None, "none", sequence of str or sequence of int, optional
         Explicit choice: chemical symbols (every atom of those species), atom indices,
-        or ``"none"``. ``None`` detects them: the substrate species are those of the bulk
-        in the slab's metadata (``atoms.info["surfgeo"]["bulk"]``) or else those of the
-        bottom layer; an atom is an adsorbate when it is not of a substrate species and
-        lies in a layer without substrate-species atoms (a surface alloy atom in a
-        substrate layer is not an adsorbate).
+        or ``"none"``. ``None`` detects them: atoms marked by the model builder (per-atom
+        arrays :data:`MARK_ARRAYS`, adsorbate molecules and overlayer films) when any are
+        marked; otherwise the substrate species are those of the bulk in the slab's
+        metadata (``atoms.info["surfgeo"]["bulk"]``) or else those of the bottom layer,
+        and an atom is an adsorbate when it is not of a substrate species and lies in a
+        layer without substrate-species atoms (a surface alloy atom in a substrate layer
+        is not an adsorbate).
 
     Returns
     -------
@@ -401,6 +405,9 @@ def find_adsorbates(atoms, heights: np.ndarray | None = None, select=None,
                 )
             return np.isin(symbols, items)
         raise InputError("adsorbates must be given as chemical symbols or as atom indices, not a mixture.")
+    marked = _marked_adsorbates(atoms)
+    if marked is not None:
+        return marked
     if heights is None:
         from surfgeo.slab.dipole import slab_heights
 
