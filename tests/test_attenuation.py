@@ -48,6 +48,8 @@ def test_monolayer_thickness_against_ase_bulk():
         atoms = bulk(sym)
         # Source: ASE bulk builder (reference states): volume per atom
         assert monolayer_thickness(z) == pytest.approx((atoms.get_volume() / len(atoms)) ** (1 / 3), rel=1e-9)
+    v_cu, v_w = (bulk(sym).get_volume() / len(bulk(sym)) for sym in ("Cu", "W"))
+    assert monolayer_thickness([29, 74, 29]) == pytest.approx(((2 * v_cu + v_w) / 3) ** (1 / 3), rel=1e-9)
     # oxygen has no crystal in ASE's reference states: left out of the mean
     assert monolayer_thickness([29, 8, 8]) == pytest.approx(monolayer_thickness([29]))
     assert monolayer_thickness([8]) == DEFAULT_MONOLAYER_THICKNESS

@@ -400,6 +400,19 @@ def test_chunking_does_not_change_results():
     assert out == pytest.approx(ref, rel=1e-10)
 
 
+def test_beam_blocks_in_the_sweep(monkeypatch):
+    import surfgeo.diffraction.kinematic as kin
+
+    slab = fcc100("Cu", size=(2, 2, 5), a=3.61)
+    g = np.random.default_rng(2).uniform(-3, 3, size=(13, 2))
+    energies = np.arange(50.0, 70.0, 2.0)
+    ref = kinematic_iv(slab.positions, slab.numbers, g, energies, (8.0, 0.0))
+    monkeypatch.setattr(kin, "PLANE_ELEMENTS", 7)
+    out = kinematic_iv(slab.positions, slab.numbers, g, energies, (8.0, 0.0))
+    assert np.array_equal(np.isnan(ref), np.isnan(out))
+    assert out[~np.isnan(ref)] == pytest.approx(ref[~np.isnan(ref)], rel=1e-12)
+
+
 @settings(max_examples=25, deadline=None)
 @given(
     shift=st.tuples(*(st.floats(-10, 10),) * 3),

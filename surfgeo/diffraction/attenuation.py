@@ -115,11 +115,12 @@ def monolayer_thickness(numbers) -> float:
     elements). Elements without such a crystal (gases, molecular solids) are left out of the
     mean; if none is left, :data:`DEFAULT_MONOLAYER_THICKNESS` is returned.
     """
-    z = np.asarray(numbers, dtype=int).reshape(-1)
-    vols = [v for v in (_atomic_volume(int(zi)) for zi in z) if v is not None]
-    if not vols:
+    elements, counts = np.unique(np.asarray(numbers, dtype=int).reshape(-1), return_counts=True)
+    vols = np.array([_atomic_volume(int(zi)) or np.nan for zi in elements], dtype=float)
+    known = ~np.isnan(vols)
+    if not known.any():
         return DEFAULT_MONOLAYER_THICKNESS
-    return float(np.mean(vols)) ** (1.0 / 3.0)
+    return float(np.average(vols[known], weights=counts[known])) ** (1.0 / 3.0)
 
 
 def _path_decay(imfp: np.ndarray, k_inside, kz_in, kz_out) -> np.ndarray:

@@ -68,6 +68,10 @@ from surfgeo.errors import InputError, StructureError
 #: (2**18 complex128 = 4 MiB): bounds memory for any number of atoms and beams.
 CHUNK_ELEMENTS = 2**18
 
+#: Largest number of complex elements of the per-layer in-plane sums (groups x beams) held at
+#: once by the energy sweep (2**22 complex128 = 64 MiB); more beams are taken in blocks.
+PLANE_ELEMENTS = 2**22
+
 #: The note that every output of kinematic intensities should carry.
 QUALITATIVE_NOTE = (
     "Kinematic intensities are qualitative for LEED (multiple scattering is strong); beam "
@@ -268,14 +272,27 @@ def _atom_terms(r, z, surface_z, temperature, debye_temperatures, vibration_mode
     return _AtomTerms(r, depth, msd, species, species_id.reshape(-1), group_id, group_start, group_species)
 
 
-def _segment_sums(values: np.ndarray, ids: np.ndarray, n_out: int) -> np.ndarray:
-    """Sum the rows of ``values`` by the sorted segment ``ids`` into an (n_out, ...) array."""
-    out = np.zeros((n_out,) + values.shape[1:], dtype=values.dtype)
+def _add_segment_sums(out: np.ndarray, values: np.ndarray, ids: np.ndarray) -> None:
+    """Add the rows of ``values`` into ``out[ids]``, ``ids`` sorted (rows of one id are summed)."""
     if len(ids) == 0:
-        return out
+        return
     starts = np.nonzero(np.r_[True, ids[1:] != ids[:-1]])[0]
-    out[ids[starts]] = np.add.reduceat(values, starts, axis=0)
-    return out
+    out[ids[starts]] += np.add.reduceat(values, starts, axis=0)
+
+
+def _group_factors(atoms: _AtomTerms, kappa, q2) -> np.ndarray:
+    """exp(-kappa D_G - q^2 <u^2>_G / 2) per group and beam; kappa, q2 of shape (..., Nb)."""
+    dg = atoms.depth[atoms.group_start]
+    ug = atoms.msd[atoms.group_start]
+    return np.exp(-kappa[..., None, :] * dg[:, None] - 0.5 * q2[..., None, :] * ug[:, None])
+
+
+def _weighted_species_sum(atoms: _AtomTerms, per_group: np.ndarray, f: np.ndarray) -> np.ndarray:
+    """sum_G f[species(G)] per_group[..., G, b]; per_group (E, G, Nb), f (S, E, Nb) -> (E, Nb)."""
+    sg = atoms.group_species
+    starts = np.nonzero(np.r_[True, sg[1:] != sg[:-1]])[0]
+    by_species = np.add.reduceat(per_group, starts, axis=-2)  # (E, S_present, Nb)
+    return np.einsum("seb,esb->eb", f[sg[starts]], by_species)
 
 
 # ---------------------------------------------------------------------------- the sums
@@ -311,24 +328,28 @@ def _beam_terms(geom: ScatteringGeometry, att_model, amp_model, species):
 
 
 def _direct(atoms: _AtomTerms, q, q2, kappa, f, emerges, chunk: int) -> np.ndarray:
-    """One energy at a time: exp(i q.r - kappa D - q^2 <u^2>/2) over atoms x beams in chunks."""
+    """One energy at a time: the phases exp(i q . r_j) over atoms x beams in chunks, summed per
+    group of atoms sharing species, height, depth and <u^2>; the real attenuation and
+    Debye-Waller factors are then applied per group (groups x beams only)."""
     ne, nb = emerges.shape
     n = len(atoms.r)
-    x = np.column_stack([atoms.r, atoms.depth, atoms.msd]).astype(complex)  # (N, 5)
-    species_id = atoms.species_id
+    n_groups = len(atoms.group_start)
     amp = np.zeros((ne, nb), dtype=complex)
     for i in range(ne):
         sel = np.nonzero(emerges[i])[0]
         if sel.size == 0:
             continue
-        coeff = np.vstack([1j * q[i, sel].T, -kappa[i, sel][None, :], -0.5 * q2[i, sel][None, :]])  # (5, nb)
+        qt = np.ascontiguousarray(q[i, sel].T)  # (3, nb)
         rows = max(1, chunk // sel.size)
-        sums = np.zeros((len(atoms.species), sel.size), dtype=complex)
+        sums = np.zeros((n_groups, sel.size), dtype=complex)
         for a in range(0, n, rows):
-            block = x[a : a + rows] @ coeff
-            np.exp(block, out=block)
-            sums += _segment_sums(block, species_id[a : a + rows], len(atoms.species))
-        amp[i, sel] = np.einsum("sb,sb->b", f[:, i, sel], sums)
+            phase = atoms.r[a : a + rows] @ qt
+            block = np.empty(phase.shape, dtype=complex)
+            np.multiply(phase, 1j, out=block)
+            np.exp(block, out=block)  # purely imaginary argument: cos + i sin
+            _add_segment_sums(sums, block, atoms.group_id[a : a + rows])
+        sums *= _group_factors(atoms, kappa[i, sel], q2[i, sel])
+        amp[i, sel] = _weighted_species_sum(atoms, sums[None], f[:, i : i + 1, sel])[0]
     return amp
 
 
@@ -342,30 +363,23 @@ def _grouped(atoms: _AtomTerms, g, q, q2, kappa, f, emerges, chunk: int) -> np.n
     rows = max(1, chunk // max(nb, 1))
     plane = np.zeros((n_groups, nb), dtype=complex)
     rt = np.ascontiguousarray(atoms.r[:, :2])
+    gt = np.ascontiguousarray(g.T)
     for a in range(0, n, rows):
-        block = (rt[a : a + rows] @ g.T) * 1j
+        phase = rt[a : a + rows] @ gt
+        block = np.empty(phase.shape, dtype=complex)
+        np.multiply(phase, 1j, out=block)
         np.exp(block, out=block)
-        plane += _segment_sums(block, atoms.group_id[a : a + rows], n_groups)
+        _add_segment_sums(plane, block, atoms.group_id[a : a + rows])
     zg = atoms.r[atoms.group_start, 2]
-    dg = atoms.depth[atoms.group_start]
-    ug = atoms.msd[atoms.group_start]
-    species_of_group = atoms.group_species
     amp = np.zeros((ne, nb), dtype=complex)
     per_energy = max(1, chunk // max(n_groups * nb, 1))
     for a in range(0, ne, per_energy):
         s = slice(a, a + per_energy)
-        expo = (
-            1j * q[s, None, :, 2] * zg[None, :, None]
-            - kappa[s, None, :] * dg[None, :, None]
-            - 0.5 * q2[s, None, :] * ug[None, :, None]
-        )  # (ne_block, G, Nb)
+        expo = np.multiply.outer(q[s, :, 2], zg).transpose(0, 2, 1) * 1j  # (ne_block, G, Nb)
         np.exp(expo, out=expo)
         expo *= plane[None]
-        # sum groups by species (groups are sorted by species), then weight by the amplitudes
-        by_species = np.zeros((expo.shape[0], len(atoms.species), nb), dtype=complex)
-        starts = np.nonzero(np.r_[True, species_of_group[1:] != species_of_group[:-1]])[0]
-        by_species[:, species_of_group[starts]] = np.add.reduceat(expo, starts, axis=1)
-        amp[s] = np.einsum("seb,esb->eb", f[:, s], by_species)
+        expo *= _group_factors(atoms, kappa[s], q2[s])
+        amp[s] = _weighted_species_sum(atoms, expo, f[:, s])
     return amp
 
 
@@ -424,10 +438,18 @@ def kinematic_iv(
     q, q2, kappa, f = _beam_terms(geom, att_model, amp_model, atoms.species)
     n, n_groups = len(r), len(atoms.group_start)
     # direct: NE passes over atoms x beams; grouped: one pass plus NE passes over groups x beams
-    if n + ne * n_groups < ne * n:
-        amp = _grouped(atoms, g, q, q2, kappa, f, geom.emerges, chunk)
-    else:
-        amp = _direct(atoms, q, q2, kappa, f, geom.emerges, chunk)
+    grouped = n + ne * n_groups < ne * n
+    # beams are independent: take them in blocks so that the per-group sums stay bounded
+    amp = np.empty((ne, nb), dtype=complex)
+    step = max(1, PLANE_ELEMENTS // n_groups)
+    for a in range(0, nb, step):
+        s = slice(a, a + step)
+        if grouped:
+            amp[:, s] = _grouped(
+                atoms, g[s], q[:, s], q2[:, s], kappa[:, s], f[:, :, s], geom.emerges[:, s], chunk
+            )
+        else:
+            amp[:, s] = _direct(atoms, q[:, s], q2[:, s], kappa[:, s], f[:, :, s], geom.emerges[:, s], chunk)
     intensity = amp.real**2 + amp.imag**2
     intensity[~geom.emerges] = np.nan
     return intensity
