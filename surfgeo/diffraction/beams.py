@@ -21,8 +21,9 @@ import numpy as np
 
 from surfgeo.errors import InputError, NotationError
 
-#: Largest denominator accepted when a float matrix entry is recognised as a rational number.
-MAX_DENOMINATOR = 1000
+#: Largest denominator accepted when a float matrix entry is recognised as a rational number
+#: (as for decimals in :mod:`surfgeo.lattice.rational`); larger ones stay floats.
+MAX_DENOMINATOR = 12
 
 
 def reciprocal_points_in_disc(reciprocal, centre, radius: float) -> np.ndarray:

@@ -1,0 +1,488 @@
+"""``surfgeo pattern``: predicted diffraction spots, on the screen, at one energy or over a range."""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+
+import numpy as np
+
+from surfgeo.cli._common import (
+    add_lattice_option,
+    add_output_options,
+    add_superstructure_options,
+    resolve_lattice,
+    resolve_superstructure,
+)
+
+ORDER = 30
+
+EPILOG = """\
+Beams come from a bare superstructure (--lattice with --matrix or --wood: positions only) or
+from a structure (MODEL: a surface model file, or any structure file ASE reads that carries
+the surfgeo surface record, e.g. the extended XYZ written by 'surfgeo build'): positions and
+kinematic intensities. Symmetry domains are superposed incoherently with equal weights
+unless --weights or --no-domains is given; every beam lists the domains that produce it.
+Labels are exact fractions in the substrate 1x1 reciprocal basis.
+
+A non-integer matrix is an overlayer (coincidence or incommensurate): substrate and
+overlayer beams, plus double-diffraction combinations g_substrate + g_overlayer with
+--double-order N (N shortest shells of each lattice).
+
+Kinematic intensities are qualitative for LEED (multiple scattering is strong); positions and
+symmetry extinctions at normal incidence are exact. A kinematic extinction at off-normal
+incidence is not a prediction: multiple scattering lifts it.
+
+Only beams within the acceptance of the screen (--theta-max, default the screen's own, 55
+degrees) are listed; --theta-max 90 lists every emerging beam.
+
+examples:
+  surfgeo pattern --lattice hex:2.77 --wood "(2x1)" --energy 80 --plot p2x1.png
+      the three (2x1) domains on a hexagonal substrate at 80 eV, with a spot map in k-space
+      and on the default screen
+
+  surfgeo pattern slab.extxyz --energy 120 --incidence 6,0 --json - --csv beams.csv
+      kinematic intensities of a slab at 6 degrees incidence, as JSON and a CSV table
+
+  surfgeo pattern --lattice square:2.55 --matrix 2 0 0 1 --energy 40:300:2 \\
+      --screen camera:dist=3,size=640x480 --plot paths.png --animate sweep.gif
+      an energy sweep: onset energy of every beam, spot trajectories and a GIF animation
+"""
+
+
+def register(subparsers, common: argparse.ArgumentParser) -> None:
+    from surfgeo.screen.spec import SCREEN_HELP
+
+    p = subparsers.add_parser(
+        "pattern",
+        parents=[common],
+        help="predicted spot pattern of a superstructure or a slab (positions, domains, intensities)",
+        description="Predict which diffraction beams appear, where they land on the screen, which "
+        "domains produce them and (with atoms) their kinematic intensities, at one energy or over "
+        "an energy range.",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument(
+        "model", nargs="?", metavar="MODEL", help="surface model file or structure file (with atoms)"
+    )
+    add_lattice_option(p, required=False)
+    add_superstructure_options(p, wood_positional=False)
+    p.add_argument(
+        "--energy",
+        required=True,
+        metavar="E",
+        help="beam energy in eV: one value, a list E1,E2,... or a range START:STOP:STEP (a sweep)",
+    )
+    p.add_argument(
+        "--incidence",
+        default="0,0",
+        metavar="THETA,PHI",
+        help="polar angle from the surface normal and azimuth from a1 of the incident beam, degrees "
+        "(default 0,0)",
+    )
+    p.add_argument("--screen", metavar="SPEC", help=SCREEN_HELP)
+    p.add_argument(
+        "--theta-max",
+        type=float,
+        metavar="DEG",
+        help="acceptance half-angle around the screen axis, degrees (overrides the screen's)",
+    )
+    p.add_argument("--no-domains", action="store_true", help="only the superstructure as given, no domains")
+    p.add_argument(
+        "--weights", metavar="W1,W2,...", help="weights of the domains (normalised), in domain order"
+    )
+    p.add_argument(
+        "--double-order",
+        type=int,
+        default=0,
+        metavar="N",
+        help="overlayers: add double-diffraction beams combining N shells of each lattice",
+    )
+    p.add_argument(
+        "--inner-potential",
+        type=float,
+        default=10.0,
+        metavar="EV",
+        help="real inner potential for the kinematic intensities, eV (default 10)",
+    )
+    p.add_argument(
+        "--temperature",
+        type=float,
+        default=300.0,
+        metavar="K",
+        help="sample temperature for the Debye-Waller factors, K (default 300)",
+    )
+    add_output_options(p, plot=True)
+    p.add_argument("--csv", metavar="FILE", help="write the beam table (or positions versus energy) as CSV")
+    p.add_argument(
+        "--view",
+        choices=("both", "kspace", "screen"),
+        default="both",
+        help="panels of the spot-map figure (default both)",
+    )
+    p.add_argument("--animate", metavar="FILE.gif", help="energy sweeps: write a GIF animation of the screen")
+    p.set_defaults(func=run)
+
+
+# ----------------------------------------------------------------------------- helpers
+def _parse_pair(text: str, name: str) -> tuple[float, float]:
+    from surfgeo.errors import InputError
+
+    parts = [p.strip() for p in str(text).split(",")]
+    try:
+        if len(parts) != 2:
+            raise ValueError
+        return float(parts[0]), float(parts[1])
+    except ValueError:
+        raise InputError(
+            f"{name} must be two numbers THETA,PHI in degrees, such as 10,0; got {text!r}."
+        ) from None
+
+
+def _parse_weights(text: str | None):
+    from surfgeo.errors import InputError
+
+    if text is None:
+        return None
+    try:
+        return [float(p) for p in text.split(",") if p.strip()]
+    except ValueError:
+        raise InputError(
+            f"--weights must be numbers separated by commas, such as 1,1,2; got {text!r}."
+        ) from None
+
+
+def _outputs(args) -> list[str]:
+    return [p for p in (args.json, args.csv, args.plot, args.animate) if p and p != "-"]
+
+
+def _check_outputs(args) -> None:
+    from surfgeo.errors import InputError
+    from surfgeo.io import check_writable
+
+    paths = _outputs(args)
+    if len(set(paths)) != len(paths):
+        raise InputError(
+            "two outputs name the same file; give each of --json, --csv, --plot, --animate its own."
+        )
+    for p in paths:
+        check_writable(p, args.force)
+    for opt, path in (("--plot", args.plot),):
+        if path and not path.lower().endswith((".png", ".svg")):
+            raise InputError(f"{opt} {path}: the figure must end in .png or .svg.")
+    if args.animate and not args.animate.lower().endswith(".gif"):
+        raise InputError(f"--animate {args.animate}: the animation must end in .gif.")
+
+
+def _fmt(x, width: int, prec: int = 2) -> str:
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "-".rjust(width)
+    return f"{x:{width}.{prec}f}"
+
+
+# ----------------------------------------------------------------------------- run
+def run(args: argparse.Namespace) -> int:
+    from surfgeo.diffraction.sweep import parse_energies
+    from surfgeo.errors import InputError
+    from surfgeo.screen import parse_screen
+
+    energies = parse_energies(args.energy)
+    incidence = _parse_pair(args.incidence, "--incidence")
+    weights = _parse_weights(args.weights)
+    if args.theta_max is not None and not (0 < args.theta_max <= 90):
+        raise InputError(f"--theta-max must be in (0, 90] degrees, got {args.theta_max:g}.")
+    if args.double_order < 0:
+        raise InputError(f"--double-order must be 0 or positive, got {args.double_order}.")
+    screen = parse_screen(args.screen, acceptance_deg=args.theta_max)
+    theta_max = screen.acceptance_deg
+    sweep = energies.size > 1
+    if args.animate and not sweep:
+        raise InputError("--animate needs an energy range such as --energy 40:300:2.")
+    _check_outputs(args)
+
+    atoms = None
+    lattice = matrix = None
+    if args.model:
+        if args.lattice or args.matrix is not None or args.wood is not None:
+            raise InputError("give either a MODEL file or --lattice with --matrix/--wood, not both.")
+        if args.double_order:
+            raise InputError("--double-order applies to overlayers given with --lattice and --matrix/--wood.")
+        from surfgeo.io.structures import read_structure
+
+        atoms = read_structure(args.model)
+        if "surfgeo" not in atoms.info:
+            print(
+                f"surfgeo pattern: note: {args.model} has no surfgeo surface record; its cell is taken "
+                "as the 1x1 surface cell.",
+                file=sys.stderr,
+            )
+    else:
+        if not args.lattice:
+            raise InputError("give a MODEL file, or the substrate with --lattice (and --matrix or --wood).")
+        lattice = resolve_lattice(args.lattice)
+        sup = resolve_superstructure(args, lattice, required=False)
+        matrix = None if sup is None else sup.matrix
+
+    kin = {"inner_potential": args.inner_potential, "temperature": args.temperature}
+    domains = not args.no_domains
+    if sweep:
+        from surfgeo.diffraction.sweep import pattern_sweep
+
+        result = pattern_sweep(
+            energies,
+            lattice=lattice,
+            matrix=matrix,
+            atoms=atoms,
+            incidence=incidence,
+            domains=domains,
+            weights=weights,
+            theta_max=theta_max,
+            double_order=args.double_order,
+            **(kin if atoms else {}),
+        )
+        text = sweep_report(result, screen)
+        csv_text = sweep_csv(result, screen)
+    else:
+        from surfgeo.diffraction.pattern import slab_pattern, superstructure_pattern
+
+        e = float(energies[0])
+        if atoms is not None:
+            result = slab_pattern(
+                atoms, e, incidence, domains=domains, weights=weights, theta_max=theta_max, **kin
+            )
+        else:
+            result = superstructure_pattern(
+                lattice,
+                matrix,
+                e,
+                incidence,
+                domains=domains,
+                weights=weights,
+                theta_max=theta_max,
+                double_order=args.double_order,
+            )
+        text = pattern_report(result, screen)
+        csv_text = pattern_csv(result, screen)
+
+    if args.json != "-":
+        sys.stdout.write(text)
+    if args.json:
+        from surfgeo.io import dump_json
+
+        dump_json(result.to_dict(screen), args.json, args.force)
+    if args.csv:
+        from surfgeo.io import write_text
+
+        write_text(args.csv, csv_text, args.force)
+    if args.plot or args.animate:
+        from surfgeo.plot import spotmap
+
+        if args.plot:
+            if sweep:
+                spotmap.plot_trajectories(result, screen, args.plot, args.force)
+            else:
+                spotmap.plot_pattern(result, args.plot, screen, args.force, view=args.view)
+        if args.animate:
+            spotmap.animate_sweep(result, screen, args.animate, args.force)
+    return 0
+
+
+# ----------------------------------------------------------------------------- text and CSV
+def _domain_text(ds, nd: int) -> str:
+    if nd == 1:
+        return "0"
+    if len(ds) == nd:
+        return "all"
+    return ",".join(str(d) for d in ds)
+
+
+def _header(pattern_like, screen, energy_text: str) -> list[str]:
+    from surfgeo.diffraction.beams import format_index
+
+    base = pattern_like
+    lat = base.lattice
+    a, b = lat.lengths
+    inc = base.incidence
+    lines = [
+        f"energy      {energy_text}",
+        f"incidence   polar {inc[0]:g} deg, azimuth {inc[1]:g} deg from a1",
+        f"substrate   {lat.kind()}, |a1| = {a:.6g} A, |a2| = {b:.6g} A, gamma = {lat.gamma:.6g} deg",
+    ]
+    desc = base.description or {}
+    if desc.get("kind") == "slab":
+        lines.append(
+            f"structure   {desc.get('formula')} ({desc.get('atoms')} atoms), cell matrix {desc.get('matrix')}"
+        )
+    elif desc.get("matrix") is not None:
+        lines.append(f"matrix      {desc.get('matrix')} ({desc.get('superstructure')})")
+    recs = base.domain_records
+    lines.append(f"domains     {len(recs)}")
+    for r in recs:
+        m = (
+            "[["
+            + "], [".join(
+                ", ".join(format_index(x) if not isinstance(x, float) else f"{x:.6g}" for x in row)
+                for row in r.matrix
+            )
+            + "]]"
+        )
+        extra = f", {r.structures} structural" if desc.get("kind") == "slab" else ""
+        lines.append(
+            f"  {r.index}: matrix {m}, weight {r.weight:.3g}, from {' '.join(o.symbol for o in r.operations)}"
+            f"{extra}"
+        )
+    lines.append(f"screen      {screen.describe()}")
+    return lines
+
+
+def pattern_report(pattern, screen) -> str:
+    """The text report of a single-energy pattern."""
+    from surfgeo.diffraction.beams import format_index
+
+    px, vis = pattern.screen_positions(screen)
+    nd = len(pattern.domain_records)
+    ext = pattern.extinct
+    lines = _header(pattern, screen, f"{pattern.energy:g} eV")
+    lines.append(
+        f"beams       {len(pattern)} within {pattern.theta_max:g} deg of the screen axis "
+        f"({int(np.sum(vis)) if len(pattern) else 0} visible)"
+    )
+    lines.append("")
+    head = (
+        f"{'h':>6} {'k':>6}  {'order':<10} {'source':<14} {'theta':>6} {'phi':>6} {'kx':>7} {'ky':>7} "
+        f"{'domains':<8}"
+    )
+    if pattern.intensity is not None:
+        head += f" {'intensity':>10}"
+    head += f" {'x':>7} {'y':>7}"
+    lines.append(head)
+    for i, (h, k) in enumerate(pattern.hk):
+        row = (
+            f"{format_index(h):>6} {format_index(k):>6}  {pattern.order[i]:<10} {pattern.source[i]:<14} "
+            f"{_fmt(pattern.theta[i], 6, 1)} {_fmt(pattern.phi[i], 6, 1)} "
+            f"{_fmt(pattern.k_parallel[i, 0], 7, 3)} "
+            f"{_fmt(pattern.k_parallel[i, 1], 7, 3)} {_domain_text(pattern.domains[i], nd):<8}"
+        )
+        if pattern.intensity is not None:
+            row += " " + ("extinct".rjust(10) if ext[i] else f"{pattern.intensity[i]:10.4g}")
+        row += f" {_fmt(px[i, 0], 7, 1)} {_fmt(px[i, 1], 7, 1)}"
+        if not vis[i]:
+            row += "  (shadow)"
+        lines.append(row)
+    lines.append("")
+    lines += [f"note: {n}" for n in pattern.notes]
+    return "\n".join(lines) + "\n"
+
+
+def pattern_csv(pattern, screen) -> str:
+    """CSV of a single-energy pattern (same columns as a sweep)."""
+    return _csv_rows(
+        [
+            (
+                pattern.energy,
+                i,
+                pattern.hk[i],
+                pattern.order[i],
+                pattern.source[i],
+                pattern.domains[i],
+                pattern.theta[i],
+                pattern.phi[i],
+                pattern.k_parallel[i],
+                None if pattern.intensity is None else pattern.intensity[i],
+            )
+            for i in range(len(pattern))
+        ],
+        *pattern.screen_positions(screen),
+    )
+
+
+_CSV_HEAD = "energy_eV,h,k,order,source,domains,theta_deg,phi_deg,kx,ky,screen_x,screen_y,on_screen,intensity"
+
+
+def _csv_rows(rows, px, vis) -> str:
+    from surfgeo.diffraction.beams import format_index
+
+    out = [_CSV_HEAD]
+    for j, (e, i, hk, order, src, doms, th, ph, kp, inten) in enumerate(rows):
+        del i
+        vals = [
+            f"{e:g}",
+            format_index(hk[0]),
+            format_index(hk[1]),
+            order,
+            src,
+            " ".join(str(d) for d in doms),
+            f"{th:.6f}",
+            f"{ph:.6f}",
+            f"{kp[0]:.6f}",
+            f"{kp[1]:.6f}",
+            f"{px[j][0]:.4f}" if np.isfinite(px[j][0]) else "",
+            f"{px[j][1]:.4f}" if np.isfinite(px[j][1]) else "",
+            "1" if vis[j] else "0",
+            "" if inten is None or not np.isfinite(inten) else f"{inten:.6g}",
+        ]
+        out.append(",".join(vals))
+    return "\n".join(out) + "\n"
+
+
+def sweep_report(sweep, screen) -> str:
+    """The text report of an energy sweep: onset energy of every beam."""
+    from surfgeo.diffraction.beams import format_index
+
+    base = sweep.base
+    e = sweep.energies
+    lines = _header(base, screen, f"{e[0]:g} to {e[-1]:g} eV, {len(e)} energies")
+    lines.append(
+        f"beams       {len(sweep.index)} reach the screen (within {sweep.theta_max:g} deg of its axis) "
+        "in this range"
+    )
+    lines.append("")
+    lines.append(
+        f"{'h':>6} {'k':>6}  {'order':<10} {'source':<14} {'domains':<8} {'onset_eV':>9} {'theta@max':>9}"
+    )
+    nd = len(base.domain_records)
+    order = np.argsort(sweep.onset, kind="stable")
+    for j in order:
+        i = sweep.index[j]
+        h, k = base.hk[i]
+        lines.append(
+            f"{format_index(h):>6} {format_index(k):>6}  {base.order[i]:<10} {base.source[i]:<14} "
+            f"{_domain_text(base.domains[i], nd):<8} {_fmt(float(sweep.onset[j]), 9, 1)} "
+            f"{_fmt(float(sweep.theta[-1, j]), 9, 1)}"
+        )
+    lines.append("")
+    lines.append(
+        "Positions versus energy: --csv FILE or --json FILE; trajectories: --plot; animation: --animate."
+    )
+    lines += [f"note: {n}" for n in base.notes]
+    return "\n".join(lines) + "\n"
+
+
+def sweep_csv(sweep, screen) -> str:
+    """Positions (and intensities) versus energy, one row per emerging beam and energy."""
+    base = sweep.base
+    px, vis = sweep.screen_positions(screen)
+    rows, pxs, viss = [], [], []
+    for f, e in enumerate(sweep.energies):
+        for j, i in enumerate(sweep.index):
+            if not np.isfinite(sweep.theta[f, j]):
+                continue
+            rows.append(
+                (
+                    e,
+                    i,
+                    base.hk[i],
+                    base.order[i],
+                    base.source[i],
+                    base.domains[i],
+                    sweep.theta[f, j],
+                    sweep.phi[f, j],
+                    sweep.k_parallel[f, j],
+                    None if sweep.intensity is None else sweep.intensity[f, j],
+                )
+            )
+            pxs.append(px[f, j])
+            viss.append(vis[f, j])
+    return _csv_rows(rows, pxs, viss)

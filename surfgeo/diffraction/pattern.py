@@ -1,0 +1,785 @@
+"""Predicted diffraction patterns: which beams, where, from which domains, how strong.
+
+Two sources of beams:
+
+* a bare superstructure (substrate lattice plus matrix ``M``, ``B = M A``) gives beam positions
+  only (:func:`superstructure_pattern`);
+* a slab (``ase.Atoms`` with the ``atoms.info["surfgeo"]`` record) or a model file gives
+  positions and kinematic intensities (:func:`slab_pattern`).
+
+Symmetry domains (rotated and mirrored copies of the superstructure that the substrate allows)
+are superposed incoherently: ``I(g) = sum_d w_d I_d(g)``, equal weights ``w_d`` by default.
+Every beam lists the domains that produce it.
+
+A superstructure matrix with non-integer entries is treated as an overlayer with its own
+lattice (coincidence when rational, incommensurate otherwise): the pattern holds the substrate
+beams, the overlayer beams, and optionally the double-diffraction combinations
+``g_substrate + g_overlayer`` up to a chosen order, labelled as such. The order ``n`` combines
+the ``n`` shortest shells (stars) of non-zero vectors of each lattice, so it does not depend on
+the choice of basis.
+
+Beam labels are exact fractions in the substrate 1x1 reciprocal basis when the matrix is
+rational (see :mod:`surfgeo.diffraction.beams`), floats for incommensurate overlayers.
+
+.. note::
+
+   Kinematic intensities are qualitative for LEED (multiple scattering is strong); beam
+   positions and symmetry extinctions at normal incidence are exact. A kinematic extinction at
+   off-normal incidence is not a prediction: multiple scattering lifts it once the plane of
+   incidence leaves the glide line.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+import numpy as np
+
+from surfgeo.diffraction.beams import (
+    float_matrix,
+    format_index,
+    label_numerators,
+    rational_matrix,
+    reciprocal_points_in_disc,
+    terrace_indices,
+)
+from surfgeo.diffraction.electron import (
+    check_incidence,
+    exit_angles,
+    exit_directions,
+    incident_k_parallel,
+    to_gun_frame,
+    wavenumber,
+)
+from surfgeo.errors import InputError, StructureError
+from surfgeo.lattice import Lattice2D
+
+#: Kinds of beam sources, simplest first (a beam produced in several ways keeps the first).
+SOURCES = ("substrate", "superstructure", "overlayer", "double")
+
+#: Intensities below this fraction of the strongest beam count as extinct (numerical zero).
+EXTINCTION_RTOL = 1e-10
+
+POSITIONS_NOTE = "Beam positions are exact (kinematic conservation of parallel momentum)."
+QUALITATIVE_NOTE = (
+    "Kinematic intensities are qualitative for LEED (multiple scattering is strong); beam "
+    "positions and symmetry extinctions at normal incidence are exact. A kinematic extinction "
+    "at off-normal incidence is not a prediction: multiple scattering lifts it once the plane "
+    "of incidence leaves the glide line."
+)
+
+
+# =============================================================================== domains
+@dataclass(frozen=True)
+class DomainRecord:
+    """One lattice domain of the pattern.
+
+    Attributes
+    ----------
+    index : int
+        Position in the pattern's domain list (0 is the superstructure as given).
+    matrix : ndarray, shape (2, 2)
+        Its superstructure matrix ``M W`` (Fractions when rational, else floats).
+    operations : tuple
+        The substrate point operations (:class:`surfgeo.lattice.PointOperation`) producing it.
+    weight : float
+        Its weight in the incoherent sum (the weights add up to 1).
+    structures : int
+        Number of distinct structural domains averaged inside it (slabs; 1 otherwise).
+    """
+
+    index: int
+    matrix: np.ndarray
+    operations: tuple
+    weight: float
+    structures: int = 1
+
+    def to_dict(self) -> dict:
+        return {
+            "index": self.index,
+            "matrix": [[_matrix_entry(x) for x in row] for row in self.matrix],
+            "operations": [op.symbol for op in self.operations],
+            "weight": self.weight,
+            "structures": self.structures,
+        }
+
+
+def _matrix_entry(x):
+    if isinstance(x, Fraction):
+        return int(x) if x.denominator == 1 else str(x)
+    return float(x)
+
+
+def lattice_domains(lattice: Lattice2D, matrix, use_domains: bool = True) -> list[tuple[np.ndarray, list]]:
+    """The domains of a superstructure as (matrix, producing operations) pairs.
+
+    Uses :func:`surfgeo.lattice.symmetry_domains`; with ``use_domains=False`` only the
+    superstructure as given (produced by the identity).
+    """
+    if not use_domains:
+        ident = lattice.point_group()[0]
+        return [(_exact_or_float(matrix), [ident])]
+    from surfgeo.lattice import symmetry_domains
+
+    doms = symmetry_domains(lattice, matrix)
+    return [(_exact_or_float(d.matrix), list(d.operations)) for d in doms]
+
+
+def _exact_or_float(matrix) -> np.ndarray:
+    exact = rational_matrix(matrix)
+    return exact if exact is not None else float_matrix(matrix)
+
+
+def _normalise_weights(weights, n: int) -> np.ndarray:
+    if weights is None:
+        return np.full(n, 1.0 / n)
+    try:
+        w = np.asarray(weights, dtype=float).ravel()
+    except (TypeError, ValueError):
+        raise InputError(f"domain weights must be numbers, got {weights!r}.") from None
+    if w.size != n:
+        raise InputError(f"domain weights: {w.size} given, but this superstructure has {n} domain(s).")
+    if np.any(~np.isfinite(w)) or np.any(w < 0) or w.sum() <= 0:
+        raise InputError("domain weights must be zero or positive numbers, not all zero.")
+    return w / w.sum()
+
+
+# =============================================================================== beams
+@dataclass
+class _BeamSet:
+    """Beams before angles and intensities: keys, labels, sources and domain membership."""
+
+    exact: bool
+    den: int  # common denominator of exact keys (1 for floats)
+    keys: np.ndarray  # (n, 2) int64 numerators (exact) or float labels
+    source: np.ndarray  # (n,) int, index into SOURCES
+    member: np.ndarray  # (n, nd) bool
+    via: list  # per beam: None or dict describing a double-diffraction combination
+
+    @property
+    def hk_float(self) -> np.ndarray:
+        return self.keys / self.den if self.exact else np.asarray(self.keys, dtype=float)
+
+
+def _shells(reciprocal: np.ndarray, n_shells: int) -> np.ndarray:
+    """Integer indices of the ``n_shells`` shortest shells of non-zero reciprocal vectors."""
+    if n_shells <= 0:
+        return np.zeros((0, 2), dtype=np.int64)
+    lengths = np.sort(np.linalg.norm(reciprocal, axis=1))
+    radius = lengths[-1] * (n_shells + 1) * 1.01
+    mn = reciprocal_points_in_disc(reciprocal, np.zeros(2), radius)
+    mn = mn[np.any(mn != 0, axis=1)]
+    r = np.linalg.norm(mn @ reciprocal, axis=1)
+    shell_r = np.unique(np.round(r / r.min(), 6))[:n_shells]
+    return mn[np.isin(np.round(r / r.min(), 6), shell_r)]
+
+
+def _build_beams(lattice: Lattice2D, domains: list, kin: np.ndarray, k: float, double_order: int) -> _BeamSet:
+    """Enumerate all emerging beams of the substrate and of every domain."""
+    A_rec = lattice.reciprocal
+    exact_all = all(not np.issubdtype(np.asarray(m).dtype, np.floating) for m, _ in domains)
+    integer_M = exact_all and all(all(x.denominator == 1 for x in np.asarray(m).ravel()) for m, _ in domains)
+    nd = len(domains)
+    keys_list, src_list, dom_list, via_list = [], [], [], []
+
+    # substrate (integer-order) beams: every domain
+    sub = reciprocal_points_in_disc(A_rec, kin, k)
+    if exact_all:
+        dets = [label_numerators(np.zeros((1, 2), dtype=np.int64), m)[1] for m, _ in domains]
+        den = 1
+        for d in dets:
+            den = den * d // math.gcd(den, d)
+    else:
+        den = 1
+
+    def add(keys, source, dom, via=None):
+        keys_list.append(keys)
+        src_list.append(np.full(len(keys), source))
+        dom_list.append(np.full(len(keys), dom))
+        via_list.extend(via if via is not None else [None] * len(keys))
+
+    add(sub * den if exact_all else sub.astype(float), 0, -1)
+
+    for d, (Md, _) in enumerate(domains):
+        Mf = np.array(Md, dtype=float)
+        B_rec = np.linalg.inv(Mf).T @ A_rec  # superlattice reciprocal basis, rows
+        mn = reciprocal_points_in_disc(B_rec, kin, k)
+        if exact_all:
+            num, det = label_numerators(mn, Md)
+            keys = num * (den // det)
+        else:
+            keys = mn @ np.linalg.inv(Mf).T
+        add(keys, 1 if integer_M else 2, d)
+        if not integer_M and double_order > 0:
+            gs_idx = _shells(A_rec, double_order)
+            go_idx = _shells(B_rec, double_order)
+            if len(gs_idx) and len(go_idx):
+                gs = gs_idx @ A_rec
+                go = go_idx @ B_rec
+                tot = gs[:, None, :] + go[None, :, :]
+                kp = kin + tot
+                ok = np.einsum("ijk,ijk->ij", kp, kp) < k * k
+                i_s, i_o = np.nonzero(ok)
+                if exact_all:
+                    o_num, o_det = label_numerators(go_idx[i_o], Md)
+                    keys = gs_idx[i_s] * den + o_num * (den // o_det)
+                else:
+                    keys = gs_idx[i_s] + go_idx[i_o] @ np.linalg.inv(Mf).T
+                via = [
+                    {
+                        "substrate": [str(int(a)), str(int(b))],
+                        "overlayer": [str(int(c)), str(int(e))],
+                        "domain": d,
+                    }
+                    for (a, b), (c, e) in zip(gs_idx[i_s], go_idx[i_o], strict=True)
+                ]
+                add(keys, 3, d, via)
+
+    keys = np.concatenate(keys_list) if keys_list else np.zeros((0, 2))
+    src = np.concatenate(src_list)
+    dom = np.concatenate(dom_list)
+    # integer labels are substrate beams whatever produced them
+    if exact_all:
+        is_int = np.all(keys % den == 0, axis=1)
+        src = np.where(is_int, 0, src)
+        ukeys, inverse = np.unique(keys, axis=0, return_inverse=True)
+    else:
+        rounded = np.round(keys, 7)
+        _, first, inverse = np.unique(rounded, axis=0, return_index=True, return_inverse=True)
+        ukeys = keys[first]
+    inverse = inverse.ravel()
+    nu = len(ukeys)
+    source = np.full(nu, len(SOURCES), dtype=int)
+    np.minimum.at(source, inverse, src)
+    member = np.zeros((nu, nd), dtype=bool)
+    all_dom = dom < 0
+    member[inverse[all_dom]] = True
+    member[inverse[~all_dom], dom[~all_dom]] = True
+    via: list = [None] * nu
+    for i in np.flatnonzero(src == 3):
+        u = inverse[i]
+        if source[u] == 3 and via[u] is None:
+            via[u] = via_list[i]
+    return _BeamSet(exact_all, den if exact_all else 1, ukeys, source, member, via)
+
+
+# =============================================================================== pattern
+@dataclass
+class Pattern:
+    """A predicted diffraction pattern at one energy.
+
+    Arrays run over the beams (sorted by |g|, then by the azimuth of g). Angles in degrees,
+    ``k_parallel`` and ``g`` in 1/Angstrom in the frame of the substrate basis ``lattice``;
+    exit azimuths are measured from a1, like the incidence azimuth.
+
+    Attributes
+    ----------
+    energy : float
+        Beam energy, eV.
+    incidence : (float, float)
+        Polar angle and azimuth (from a1) of the incident beam, degrees.
+    lattice : Lattice2D
+        The substrate 1x1 lattice (labels refer to its reciprocal basis).
+    hk : list of (Fraction, Fraction) or (float, float)
+        Beam labels (exact for rational superstructures).
+    g, k_parallel : ndarray, shape (n, 2)
+        Reciprocal vector and parallel momentum ``k_par_in + g`` of each beam.
+    theta, phi : ndarray, shape (n,)
+        Exit polar angle from the surface normal and azimuth from a1.
+    source : list of str
+        One of :data:`SOURCES` per beam.
+    domains : list of tuple of int
+        Indices (into ``domain_records``) of the domains producing each beam.
+    domain_records : list of DomainRecord
+    via : list
+        For double-diffraction beams: the substrate and overlayer indices combined.
+    intensity : ndarray or None
+        Weighted incoherent sum of the domain intensities (kinematic), None without atoms.
+    domain_intensity : ndarray or None, shape (n, ndomains)
+        Intensity of each domain (0 where a domain does not produce the beam).
+    terrace_hk : ndarray or None, shape (n, 2)
+        Beam indices relative to the terrace lattice of a stepped face (energy dependent).
+    theta_max : float
+        Largest angle from the screen axis kept (degrees; 90 keeps every emerging beam).
+    notes : list of str
+        Caveats to print with the pattern.
+    """
+
+    energy: float
+    incidence: tuple[float, float]
+    lattice: Lattice2D
+    hk: list
+    g: np.ndarray
+    k_parallel: np.ndarray
+    theta: np.ndarray
+    phi: np.ndarray
+    source: list
+    domains: list
+    domain_records: list
+    via: list
+    intensity: np.ndarray | None = None
+    domain_intensity: np.ndarray | None = None
+    terrace_hk: np.ndarray | None = None
+    theta_max: float = 90.0
+    notes: list = field(default_factory=list)
+    description: dict = field(default_factory=dict)
+
+    def __len__(self) -> int:
+        return len(self.hk)
+
+    @property
+    def exact(self) -> bool:
+        """True when the labels are exact fractions."""
+        return not self.hk or isinstance(self.hk[0][0], Fraction)
+
+    @property
+    def integer(self) -> np.ndarray:
+        """True for integer-order beams (exactly, for exact labels)."""
+        if self.exact:
+            return np.array([h.denominator == 1 and k.denominator == 1 for h, k in self.hk], dtype=bool)
+        return np.array([s == "substrate" for s in self.source], dtype=bool)
+
+    @property
+    def order(self) -> list[str]:
+        """``"integer"`` or ``"fractional"`` per beam."""
+        return ["integer" if i else "fractional" for i in self.integer]
+
+    @property
+    def extinct(self) -> np.ndarray | None:
+        """True for beams whose kinematic intensity vanishes (below EXTINCTION_RTOL of the strongest)."""
+        if self.intensity is None:
+            return None
+        top = np.nanmax(self.intensity) if len(self.intensity) else 0.0
+        return self.intensity <= EXTINCTION_RTOL * top
+
+    @property
+    def incidence_xy(self) -> tuple[float, float]:
+        """The incidence with its azimuth measured from +x of the Cartesian frame."""
+        return _incidence_xy(self.lattice, self.incidence)
+
+    def index_of(self, h, k) -> int:
+        """Position of the beam labelled ``(h, k)`` (Fractions, ints or strings such as "1/2")."""
+        target = (Fraction(str(h)), Fraction(str(k)))
+        for i, lab in enumerate(self.hk):
+            if self.exact and lab == target:
+                return i
+            if (
+                not self.exact
+                and abs(lab[0] - float(target[0])) < 1e-6
+                and abs(lab[1] - float(target[1])) < 1e-6
+            ):
+                return i
+        raise KeyError(f"no beam ({h}, {k}) in this pattern")
+
+    def screen_positions(self, screen) -> tuple[np.ndarray, np.ndarray]:
+        """Image positions (n, 2) and visibility (n,) of the beams on a screen model."""
+        inc = self.incidence_xy
+        px = screen.to_pixels(self.k_parallel, self.energy, inc)
+        vis = screen.visible(self.k_parallel, self.energy, inc)
+        return px, vis
+
+    def to_dict(self, screen=None) -> dict:
+        """The JSON form: ``energy_eV``, ``basis`` {a1, a2}, ``beams`` [...] and context."""
+        px = vis = None
+        if screen is not None:
+            px, vis = self.screen_positions(screen)
+        ext = self.extinct
+        beams = []
+        for i, (h, k) in enumerate(self.hk):
+            b = {
+                "hk": [format_index(h), format_index(k)],
+                "k_parallel": [float(self.k_parallel[i, 0]), float(self.k_parallel[i, 1])],
+                "theta_deg": float(self.theta[i]),
+                "phi_deg": float(self.phi[i]),
+                "order": "integer" if self.integer[i] else "fractional",
+                "domains": list(self.domains[i]),
+                "intensity": None if self.intensity is None else float(self.intensity[i]),
+                "source": self.source[i],
+            }
+            if ext is not None:
+                b["extinct"] = bool(ext[i])
+            if self.via[i] is not None:
+                b["via"] = self.via[i]
+            if self.terrace_hk is not None:
+                b["terrace_hk"] = [float(self.terrace_hk[i, 0]), float(self.terrace_hk[i, 1])]
+            if px is not None:
+                b["screen_xy"] = [float(px[i, 0]), float(px[i, 1])]
+                b["on_screen"] = bool(vis[i])
+            beams.append(b)
+        out = {
+            "energy_eV": float(self.energy),
+            "incidence_deg": [float(self.incidence[0]), float(self.incidence[1])],
+            "basis": {"a1": self.lattice.a1.tolist(), "a2": self.lattice.a2.tolist()},
+            "theta_max_deg": float(self.theta_max),
+            "domains": [d.to_dict() for d in self.domain_records],
+            "beams": beams,
+            "notes": list(self.notes),
+        }
+        if self.description:
+            out["source"] = self.description
+        if screen is not None:
+            out["screen"] = screen.to_dict()
+        return out
+
+
+def _incidence_xy(lattice: Lattice2D, incidence) -> tuple[float, float]:
+    theta, phi = check_incidence(incidence)
+    a1_angle = math.degrees(math.atan2(lattice.a1[1], lattice.a1[0]))
+    return theta, phi + a1_angle
+
+
+def _assemble(lattice, beams: _BeamSet, energy, incidence, theta_max, records, description, notes) -> Pattern:
+    """Angles, filtering by ``theta_max`` and sorting; returns a Pattern without intensities."""
+    inc_xy = _incidence_xy(lattice, incidence)
+    hkf = beams.hk_float
+    g = hkf @ lattice.reciprocal
+    kin = incident_k_parallel(energy, inc_xy)
+    kp = kin + g
+    d = exit_directions(kp, energy)
+    keep = np.isfinite(d[:, 2])
+    if theta_max < 90.0:
+        lab = to_gun_frame(d, inc_xy)
+        with np.errstate(invalid="ignore"):
+            keep &= np.degrees(np.arccos(np.clip(lab[:, 2], -1, 1))) <= theta_max + 1e-9
+    idx = np.flatnonzero(keep)
+    gn = np.linalg.norm(g[idx], axis=1)
+    ga = np.degrees(np.arctan2(g[idx, 1], g[idx, 0])) % 360.0
+    idx = idx[np.lexsort((ga.round(6), gn.round(9)))]
+    theta, phi = exit_angles(kp[idx], energy)
+    a1_angle = math.degrees(math.atan2(lattice.a1[1], lattice.a1[0]))
+    if beams.exact:
+        hk = [(Fraction(int(a), beams.den), Fraction(int(b), beams.den)) for a, b in beams.keys[idx]]
+    else:
+        hk = [(float(a), float(b)) for a, b in beams.keys[idx]]
+    doms = [tuple(int(j) for j in np.flatnonzero(beams.member[i])) for i in idx]
+    return Pattern(
+        energy=float(energy),
+        incidence=tuple(float(v) for v in check_incidence(incidence)),
+        lattice=lattice,
+        hk=hk,
+        g=g[idx],
+        k_parallel=kp[idx],
+        theta=theta,
+        phi=(phi - a1_angle) % 360.0,
+        source=[SOURCES[s] for s in beams.source[idx]],
+        domains=doms,
+        domain_records=records,
+        via=[beams.via[i] for i in idx],
+        theta_max=float(theta_max),
+        notes=list(notes),
+        description=description,
+    )
+
+
+def _check_theta_max(theta_max) -> float:
+    try:
+        t = float(theta_max)
+    except (TypeError, ValueError):
+        raise InputError(f"theta_max must be an angle in degrees, got {theta_max!r}.") from None
+    if not (0.0 < t <= 90.0):
+        raise InputError(f"theta_max must be in (0, 90] degrees, got {theta_max!r}.")
+    return t
+
+
+def _check_energy(energy) -> float:
+    try:
+        e = float(energy)
+    except (TypeError, ValueError):
+        raise InputError(f"the energy must be a positive number of eV, got {energy!r}.") from None
+    if not math.isfinite(e) or e <= 0:
+        raise InputError(f"the energy must be a positive number of eV, got {energy!r}.")
+    return e
+
+
+def superstructure_pattern(
+    lattice: Lattice2D,
+    matrix=None,
+    energy: float = 100.0,
+    incidence=(0.0, 0.0),
+    *,
+    domains: bool = True,
+    weights=None,
+    theta_max: float = 90.0,
+    double_order: int = 0,
+) -> Pattern:
+    """Beam positions of a bare superstructure (no atoms, so no intensities).
+
+    Parameters
+    ----------
+    lattice : Lattice2D
+        Substrate 1x1 surface lattice.
+    matrix : array_like (2, 2) or None
+        Superstructure matrix (``B = M A``); ``None`` for the bare substrate. Integer matrices
+        are commensurate superstructures; non-integer ones are overlayers (coincidence when
+        rational, incommensurate otherwise).
+    energy : float
+        Beam energy, eV.
+    incidence : (float, float)
+        Polar angle from the surface normal and azimuth from a1, degrees.
+    domains : bool
+        Superpose all symmetry domains (default) or only the superstructure as given.
+    weights : sequence of float, optional
+        Domain weights (normalised to 1); equal by default.
+    theta_max : float
+        Keep beams within this angle (degrees) of the screen axis; 90 keeps every emerging beam.
+    double_order : int
+        For overlayers: add double-diffraction beams ``g_s + g_o`` combining the
+        ``double_order`` shortest shells of each lattice (0: none).
+
+    Returns
+    -------
+    Pattern
+
+    Examples
+    --------
+    >>> from surfgeo.lattice import Lattice2D
+    >>> p = superstructure_pattern(Lattice2D.square(2.55), [[2, 0], [0, 1]], 100.0)
+    >>> len(p.domain_records)
+    2
+    """
+    if not isinstance(lattice, Lattice2D):
+        raise InputError("lattice must be a surfgeo Lattice2D.")
+    energy = _check_energy(energy)
+    theta_max = _check_theta_max(theta_max)
+    try:
+        order = int(double_order)
+    except (TypeError, ValueError):
+        raise InputError(f"double-diffraction order must be a whole number, got {double_order!r}.") from None
+    if order < 0 or order != double_order:
+        raise InputError(
+            f"double-diffraction order must be 0 or a positive whole number, got {double_order!r}."
+        )
+    if matrix is None:
+        matrix = [[1, 0], [0, 1]]
+    float_matrix(matrix)  # validates shape and singularity
+    doms = lattice_domains(lattice, matrix, domains)
+    w = _normalise_weights(weights, len(doms))
+    records = [DomainRecord(i, m, tuple(ops), float(w[i])) for i, (m, ops) in enumerate(doms)]
+    inc_xy = _incidence_xy(lattice, incidence)
+    kin = incident_k_parallel(energy, inc_xy)
+    beams = _build_beams(lattice, doms, kin, wavenumber(energy), order)
+    exact = rational_matrix(matrix)
+    kind = (
+        "commensurate"
+        if exact is not None and all(x.denominator == 1 for x in exact.ravel())
+        else ("coincidence" if exact is not None else "incommensurate")
+    )
+    description = {
+        "kind": "superstructure",
+        "superstructure": kind,
+        "matrix": [[_matrix_entry(x) for x in row] for row in _exact_or_float(matrix)],
+    }
+    notes = [POSITIONS_NOTE, "No atoms were given, so there are no intensities."]
+    if kind != "commensurate" and order == 0:
+        notes.append(
+            "Overlayer: substrate and overlayer beams only; ask for a double-diffraction order "
+            "to add the combinations g_substrate + g_overlayer."
+        )
+    return _assemble(lattice, beams, energy, incidence, theta_max, records, description, notes)
+
+
+# =============================================================================== slabs
+def slab_context(atoms, use_domains: bool = True, weights=None, symprec: float | None = None):
+    """Lattice, matrix, domain records and structural representatives of a slab.
+
+    Returns
+    -------
+    lattice : Lattice2D
+    matrix : ndarray of Fraction
+    records : list of DomainRecord
+    reps : list of list of PointOperation
+        For each lattice domain the operations whose images of the slab are the distinct
+        structural domains inside it (empty when the substrate does not allow the domain).
+    notes : list of str
+    """
+    from surfgeo.diffraction.slab_domains import (
+        SYMPREC,
+        coset_representatives,
+        maps_onto_itself,
+        substrate_operations,
+    )
+    from surfgeo.slab.info import surface_info
+
+    info = surface_info(atoms)
+    lattice = info.lattice
+    M = info.supercell_matrix
+    tol = SYMPREC if symprec is None else float(symprec)
+    pos = atoms.get_positions()
+    num = atoms.get_atomic_numbers()
+    doms = lattice_domains(lattice, M, use_domains)
+    notes = []
+    reps: list[list] = []
+    n_struct = []
+    if use_domains:
+        all_ops = [op for _, ops in doms for op in ops]
+        sub_ok = substrate_operations(pos, num, all_ops, lattice.vectors, tol)
+        allowed = {id(op) for op, ok in zip(all_ops, sub_ok, strict=True) if ok}
+        cell2d = np.asarray(M, dtype=float) @ lattice.vectors
+        stab = [
+            op
+            for op in doms[0][1]
+            if id(op) in allowed and maps_onto_itself(pos, num, op.cartesian, cell2d, tol)
+        ]
+        for _, ops in doms:
+            ok_ops = [op for op in ops if id(op) in allowed]
+            groups = coset_representatives(ok_ops, stab) if ok_ops else []
+            reps.append([ok_ops[g[0]] for g in groups])
+            n_struct.append(len(groups))
+        if len(allowed) < len(all_ops):
+            notes.append(
+                f"The deepest layers of the slab keep {len(allowed)} of the {len(all_ops)} operations of the "
+                "lattice point group; only those produce domains."
+            )
+        if any(n == 0 for n in n_struct):
+            missing = [i for i, n in enumerate(n_struct) if n == 0]
+            notes.append(f"Lattice domain(s) {missing} cannot form on this substrate and get weight 0.")
+    else:
+        reps = [[doms[0][1][0]]]
+        n_struct = [1]
+    present = np.array([n > 0 for n in n_struct], dtype=float)
+    if weights is None:
+        w = present / present.sum()
+    else:
+        w = _normalise_weights(weights, len(doms)) * present
+        if w.sum() <= 0:
+            raise InputError("domain weights put all weight on domains this substrate does not allow.")
+        w = w / w.sum()
+    records = [DomainRecord(i, m, tuple(ops), float(w[i]), n_struct[i]) for i, (m, ops) in enumerate(doms)]
+    return lattice, _exact_or_float(M), records, reps, notes
+
+
+def _slab_terrace(atoms) -> np.ndarray | None:
+    """Terrace lattice vectors (2, 3) of a stepped slab from its record, if it has them."""
+    rec = atoms.info.get("surfgeo", {}) if hasattr(atoms, "info") else {}
+    step = rec.get("step") if isinstance(rec, dict) else None
+    if not isinstance(step, dict):
+        return None
+    for key in ("terrace_vectors", "terrace_cell"):
+        if step.get(key) is not None:
+            t = np.asarray(step[key], dtype=float)
+            if t.shape == (2, 3):
+                return t
+    return None
+
+
+def domain_intensities(
+    atoms, g_parallel_by_domain, energies, incidence_xy, reps, **kinematic
+) -> list[np.ndarray]:
+    """Kinematic intensities (NE, Nb_d) of each lattice domain, averaged over its structural domains.
+
+    ``g_parallel_by_domain[d]`` holds the beams of domain ``d``; the slab is rotated (or
+    mirrored) by each representative operation of ``reps[d]`` at the same incidence.
+    """
+    from surfgeo.diffraction.kinematic import kinematic_iv
+
+    pos = atoms.get_positions()
+    num = atoms.get_atomic_numbers()
+    out = []
+    for g, ops in zip(g_parallel_by_domain, reps, strict=True):
+        acc = np.zeros((len(np.atleast_1d(energies)), len(g)))
+        if len(g) == 0 or not ops:
+            out.append(acc)
+            continue
+        for op in ops:
+            p = pos.copy()
+            p[:, :2] = pos[:, :2] @ np.asarray(op.cartesian).T
+            acc += kinematic_iv(p, num, g, energies, incidence_xy, **kinematic)
+        out.append(acc / len(ops))
+    return out
+
+
+def slab_pattern(
+    atoms,
+    energy: float,
+    incidence=(0.0, 0.0),
+    *,
+    domains: bool = True,
+    weights=None,
+    theta_max: float = 90.0,
+    symprec: float | None = None,
+    terrace=None,
+    intensities: bool = True,
+    **kinematic,
+) -> Pattern:
+    """Beam positions and kinematic intensities of a slab, with all its domains.
+
+    Parameters
+    ----------
+    atoms : ase.Atoms
+        The slab; ``atoms.info["surfgeo"]`` gives the 1x1 surface cell and the supercell
+        matrix (a slab without it is taken as its own 1x1 cell). The positions of one cell of
+        the slab enter the kinematic sum.
+    energy : float
+        Beam energy, eV.
+    incidence : (float, float)
+        Polar angle from the surface normal and azimuth from a1, degrees.
+    domains : bool
+        Superpose all domains the substrate allows (default) or only the slab as given.
+    weights : sequence of float, optional
+        Weights of the lattice domains (normalised; domains the substrate does not allow get 0).
+    theta_max : float
+        Keep beams within this angle (degrees) of the screen axis.
+    symprec : float, optional
+        Tolerance (Angstrom) of the structural symmetry checks.
+    terrace : array_like (2, 3), optional
+        Terrace lattice vectors of a stepped face (default: from the slab's step record).
+    intensities : bool
+        Compute the kinematic intensities (default); False gives positions and domains only.
+    **kinematic
+        Options of :func:`surfgeo.diffraction.kinematic.kinematic_iv` (``inner_potential``,
+        ``temperature``, ``debye_temperatures``, ``amplitudes``, ``attenuation``, ...).
+
+    Returns
+    -------
+    Pattern
+        With ``intensity`` (weighted incoherent domain sum) and ``domain_intensity``.
+
+    Notes
+    -----
+    Kinematic intensities are qualitative for LEED (multiple scattering is strong); beam
+    positions and symmetry extinctions at normal incidence are exact. A kinematic extinction at
+    off-normal incidence is not a prediction.
+    """
+    energy = _check_energy(energy)
+    theta_max = _check_theta_max(theta_max)
+    if not hasattr(atoms, "get_positions"):
+        raise StructureError("a slab must be an ase.Atoms object.")
+    if len(atoms) == 0:
+        raise StructureError("the slab has no atoms.")
+    lattice, M, records, reps, notes = slab_context(atoms, domains, weights, symprec)
+    doms = [(r.matrix, list(r.operations)) for r in records]
+    inc_xy = _incidence_xy(lattice, incidence)
+    kin = incident_k_parallel(energy, inc_xy)
+    beams = _build_beams(lattice, doms, kin, wavenumber(energy), 0)
+    description = {
+        "kind": "slab",
+        "atoms": len(atoms),
+        "formula": atoms.get_chemical_formula(),
+        "matrix": [[_matrix_entry(x) for x in row] for row in M],
+    }
+    pat = _assemble(
+        lattice, beams, energy, incidence, theta_max, records, description, [QUALITATIVE_NOTE, *notes]
+    )
+    if intensities:
+        _add_intensities(pat, atoms, reps, **kinematic)
+    t = np.asarray(terrace, dtype=float) if terrace is not None else _slab_terrace(atoms)
+    if t is not None:
+        pat.terrace_hk = terrace_indices(pat.k_parallel, energy, pat.incidence_xy, t)
+    return pat
+
+
+def _add_intensities(pat: Pattern, atoms, reps, **kinematic) -> None:
+    nd = len(pat.domain_records)
+    member = np.zeros((len(pat), nd), dtype=bool)
+    for i, ds in enumerate(pat.domains):
+        member[i, list(ds)] = True
+    gs = [pat.g[member[:, d]] for d in range(nd)]
+    per = domain_intensities(atoms, gs, [pat.energy], pat.incidence_xy, reps, **kinematic)
+    dom_int = np.zeros((len(pat), nd))
+    for d in range(nd):
+        dom_int[member[:, d], d] = per[d][0]
+    w = np.array([r.weight for r in pat.domain_records])
+    pat.domain_intensity = dom_int
+    pat.intensity = dom_int @ w

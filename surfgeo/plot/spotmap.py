@@ -1,0 +1,423 @@
+"""Figures of predicted patterns: spot maps in k-space and on a screen, trajectories, animations.
+
+Style (surfgeo's own): integer-order beams are dark hexagons, fractional-order beams filled
+circles in the colour of the domain that produces them (grey when several domains do),
+overlayer beams triangles, double-diffraction beams small diamonds; beams whose kinematic
+intensity vanishes (extinct) are drawn hollow. Marker area grows with the square root of the
+kinematic intensity when there is one. The screen view uses a dark panel with the acceptance
+rim and the gun shadow.
+
+Imported lazily by the command line; never imported by the numerical core.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from surfgeo.diffraction.beams import format_index
+from surfgeo.plot import figure, save_figure
+
+#: Domain colours (fractional-order beams), in domain order.
+DOMAIN_COLOURS = (
+    "#d1495b",
+    "#00798c",
+    "#edae49",
+    "#66a182",
+    "#8d5a97",
+    "#3d5a80",
+    "#e07a5f",
+    "#81b29a",
+    "#6d597a",
+    "#b56576",
+    "#457b9d",
+    "#a8763e",
+)
+SHARED_COLOUR = "#8a8f98"
+INTEGER_COLOUR = "#22223b"
+SCREEN_INTEGER_COLOUR = "#f2e9e4"
+KSPACE_BACKGROUND = "#fbf8f3"
+#: At most this many trajectories (the lowest orders) carry labels.
+MAX_TRAJECTORY_LABELS = 36
+SCREEN_BACKGROUND = "#14213d"
+
+_MARKERS = {"substrate": "h", "superstructure": "o", "overlayer": "^", "double": "D"}
+
+
+def _label(hk) -> str:
+    return f"{format_index(hk[0])},{format_index(hk[1])}"
+
+
+def _style(pattern, on_screen: bool = False):
+    """Per-beam marker, face colour, edge colour, size and hollowness, plus legend entries."""
+    n = len(pattern)
+    integer = pattern.integer
+    ext = pattern.extinct
+    nd = len(pattern.domain_records)
+    inten = pattern.intensity
+    if inten is not None and n:
+        top = np.nanmax(inten) or 1.0
+        rel = np.sqrt(np.clip(np.nan_to_num(inten) / top, 0, 1))
+        sizes = 10 + 170 * rel
+    else:
+        sizes = np.where(integer, 70.0, 45.0)
+    markers, colours = [], []
+    for i in range(n):
+        src = pattern.source[i]
+        markers.append(_MARKERS.get(src, "o"))
+        if integer[i] and src == "substrate":
+            colours.append(SCREEN_INTEGER_COLOUR if on_screen else INTEGER_COLOUR)
+        elif len(pattern.domains[i]) == 1 and nd > 1:
+            colours.append(DOMAIN_COLOURS[pattern.domains[i][0] % len(DOMAIN_COLOURS)])
+        elif nd == 1:
+            colours.append(DOMAIN_COLOURS[0])
+        else:
+            colours.append(SHARED_COLOUR)
+    hollow = np.zeros(n, dtype=bool) if ext is None else ext.copy()
+    sizes = np.where(hollow, 45.0, sizes)
+    return markers, colours, sizes, hollow
+
+
+def _legend_handles(pattern, on_screen: bool = False):
+    from matplotlib.lines import Line2D
+
+    handles = []
+    srcs = set(pattern.source)
+    integer_colour = SCREEN_INTEGER_COLOUR if on_screen else INTEGER_COLOUR
+    edge = "#999999" if on_screen else INTEGER_COLOUR
+    if "substrate" in srcs:
+        handles.append(
+            Line2D([], [], ls="", marker="h", ms=8, mfc=integer_colour, mec=edge, label="integer order")
+        )
+    nd = len(pattern.domain_records)
+    frac_src = [s for s in ("superstructure", "overlayer", "double") if s in srcs]
+    if frac_src:
+        present = (
+            sorted(
+                {
+                    d
+                    for ds, s in zip(pattern.domains, pattern.source, strict=True)
+                    if s != "substrate"
+                    for d in ds
+                }
+            )
+            if nd > 1
+            else [0]
+        )
+        for d in present[:12]:
+            label = f"domain {d}" if nd > 1 else "fractional order"
+            handles.append(
+                Line2D([], [], ls="", marker="o", ms=7, mfc=DOMAIN_COLOURS[d % 12], mec="none", label=label)
+            )
+        if nd > 1 and any(
+            len(ds) > 1 and s != "substrate" for ds, s in zip(pattern.domains, pattern.source, strict=True)
+        ):
+            handles.append(
+                Line2D(
+                    [], [], ls="", marker="o", ms=7, mfc=SHARED_COLOUR, mec="none", label="several domains"
+                )
+            )
+    if "overlayer" in srcs:
+        handles.append(
+            Line2D([], [], ls="", marker="^", ms=7, mfc="#bbbbbb", mec="#555555", label="overlayer")
+        )
+    if "double" in srcs:
+        handles.append(
+            Line2D([], [], ls="", marker="D", ms=5, mfc="#bbbbbb", mec="#555555", label="double diffraction")
+        )
+    if pattern.extinct is not None and pattern.extinct.any():
+        handles.append(
+            Line2D(
+                [],
+                [],
+                ls="",
+                marker="o",
+                ms=7,
+                mfc="none",
+                mec="#777777",
+                mew=1.3,
+                label="extinct (kinematic)",
+            )
+        )
+    return handles
+
+
+def _scatter(ax, xy, pattern, markers, colours, sizes, hollow, edge_dark: bool) -> None:
+    for m in set(markers):
+        sel = np.array([mk == m for mk in markers])
+        for hol in (False, True):
+            s = sel & (hollow == hol) & np.isfinite(xy[:, 0])
+            if not s.any():
+                continue
+            cols = [c for c, k in zip(colours, s, strict=True) if k]
+            if hol:
+                ax.scatter(
+                    xy[s, 0],
+                    xy[s, 1],
+                    s=sizes[s],
+                    marker=m,
+                    facecolors="none",
+                    edgecolors=cols,
+                    linewidths=1.3,
+                    zorder=3,
+                )
+            else:
+                ax.scatter(
+                    xy[s, 0],
+                    xy[s, 1],
+                    s=sizes[s],
+                    marker=m,
+                    c=cols,
+                    edgecolors="#000000" if edge_dark else "none",
+                    linewidths=0.4,
+                    zorder=4,
+                )
+
+
+def _annotate(ax, xy, pattern, colour, limit: int = 90, offset=(4, 4)) -> None:
+    if len(pattern) > limit:
+        return
+    for i, hk in enumerate(pattern.hk):
+        if np.isfinite(xy[i, 0]):
+            ax.annotate(
+                _label(hk),
+                xy[i],
+                xytext=offset,
+                textcoords="offset points",
+                fontsize=6,
+                color=colour,
+                zorder=5,
+            )
+
+
+def _title(pattern) -> str:
+    inc = pattern.incidence
+    where = "normal incidence" if inc[0] == 0 else f"incidence {inc[0]:g}\u00b0 at azimuth {inc[1]:g}\u00b0"
+    return f"{pattern.energy:g} eV, {where}"
+
+
+def draw_kspace(ax, pattern) -> None:
+    """Spot map in parallel momentum (1/Angstrom) on ``ax``."""
+    from matplotlib.patches import Circle
+
+    from surfgeo.diffraction.electron import incident_k_parallel, wavenumber
+
+    ax.set_facecolor(KSPACE_BACKGROUND)
+    k = wavenumber(pattern.energy)
+    kin = incident_k_parallel(pattern.energy, pattern.incidence_xy)
+    ax.add_patch(Circle((0, 0), k, fill=False, ls="--", lw=0.8, ec="#9a8c98", zorder=1))
+    if pattern.theta_max < 90:
+        ax.add_patch(
+            Circle(
+                (0, 0),
+                k * math.sin(math.radians(pattern.theta_max)),
+                fill=False,
+                ls=":",
+                lw=0.8,
+                ec="#9a8c98",
+                zorder=1,
+            )
+        )
+    ax.plot([kin[0]], [kin[1]], marker="+", color="#9a8c98", ms=10, zorder=2)
+    markers, colours, sizes, hollow = _style(pattern)
+    _scatter(ax, pattern.k_parallel, pattern, markers, colours, sizes, hollow, edge_dark=False)
+    _annotate(ax, pattern.k_parallel, pattern, "#4a4e69")
+    lim = k * 1.08
+    ax.set_xlim(-lim, lim)
+    ax.set_ylim(-lim, lim)
+    ax.set_aspect("equal")
+    ax.set_xlabel("k$_x$ (1/\u00c5)")
+    ax.set_ylabel("k$_y$ (1/\u00c5)")
+    ax.set_title("parallel momentum (dashed: |k$_\\parallel$| = k)", fontsize=9)
+
+
+def draw_screen(ax, pattern, screen, annotate: bool = True) -> None:
+    """Spot map on the screen model (pixels, y down) on ``ax``."""
+    from matplotlib.patches import Polygon
+
+    ax.set_facecolor(SCREEN_BACKGROUND)
+    rim = screen.rim()
+    ax.add_patch(Polygon(rim[np.isfinite(rim[:, 0])], closed=True, fill=False, ec="#e5e5e5", lw=0.8, ls="--"))
+    _draw_shadow(ax, screen)
+    px, vis = pattern.screen_positions(screen)
+    px = np.where(vis[:, None], px, np.nan)
+    markers, colours, sizes, hollow = _style(pattern, on_screen=True)
+    _scatter(ax, px, pattern, markers, colours, sizes, hollow, edge_dark=False)
+    if annotate:
+        _annotate(ax, px, pattern, "#e5e5e5")
+    ax.set_xlim(-0.5, screen.width - 0.5)
+    ax.set_ylim(screen.height - 0.5, -0.5)
+    ax.set_aspect("equal")
+    ax.set_xlabel("x (px)")
+    ax.set_ylabel("y (px)")
+    ax.set_title(f"{screen.kind} screen, acceptance {screen.acceptance_deg:g}\u00b0", fontsize=9)
+
+
+def _draw_shadow(ax, screen) -> None:
+    from matplotlib.patches import Circle, Polygon
+
+    r = screen.shadow_radius
+    if r <= 0:
+        return
+    ax.add_patch(Circle((screen.centre_x, screen.centre_y), r, color="#0b0f1a", zorder=2))
+    if screen.holder_deg is not None:
+        h = math.radians(screen.holder_deg)
+        u = np.array([math.cos(h), -math.sin(h)])  # image coordinates, y down
+        n = np.array([-u[1], u[0]])
+        c = np.array([screen.centre_x, screen.centre_y])
+        far = 2.0 * max(screen.width, screen.height)
+        pts = [c + r * n, c + r * n + far * u, c - r * n + far * u, c - r * n]
+        ax.add_patch(Polygon(pts, closed=True, color="#0b0f1a", zorder=2))
+
+
+def plot_pattern(pattern, path, screen=None, force: bool = False, view: str = "both") -> None:
+    """Write a spot-map figure (PNG or SVG by the ending of ``path``).
+
+    Parameters
+    ----------
+    pattern : surfgeo.diffraction.pattern.Pattern
+    path : str or Path
+    screen : ScreenGeometry, optional
+        Draw the screen panel with this model (needed for ``view`` "screen" or "both").
+    view : {"both", "kspace", "screen"}
+    """
+    panels = (
+        ["kspace", "screen"]
+        if view == "both" and screen is not None
+        else ["screen" if view == "screen" and screen is not None else "kspace"]
+    )
+    fig = figure(figsize=(5.6 * len(panels) + 1.8, 6.0))
+    axes = fig.subplots(1, len(panels), squeeze=False)[0]
+    for ax, kind in zip(axes, panels, strict=True):
+        if kind == "kspace":
+            draw_kspace(ax, pattern)
+        else:
+            draw_screen(ax, pattern, screen)
+    handles = _legend_handles(pattern)
+    fig.legend(handles=handles, loc="center right", fontsize=8, frameon=False)
+    fig.suptitle(f"Predicted pattern \u2014 {_title(pattern)}", fontsize=11)
+    note = (
+        "kinematic intensities: qualitative; positions and normal-incidence extinctions: exact"
+        if pattern.intensity is not None
+        else "positions only (no atoms given)"
+    )
+    fig.text(0.01, 0.01, note, fontsize=7, color="#555555")
+    fig.subplots_adjust(right=0.83, wspace=0.25)
+    save_figure(fig, path, force)
+
+
+def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
+    """Spot trajectories on the screen over the energy range, coloured by energy."""
+    from matplotlib import colormaps
+    from matplotlib.cm import ScalarMappable
+    from matplotlib.collections import LineCollection
+    from matplotlib.colors import Normalize
+
+    px, vis = sweep.screen_positions(screen)
+    e = sweep.energies
+    fig = figure(figsize=(7.6, 6.4))
+    ax = fig.add_subplot(1, 1, 1)
+    ax.set_facecolor(SCREEN_BACKGROUND)
+    rim = screen.rim()
+    ax.plot(rim[:, 0], rim[:, 1], ls="--", lw=0.8, color="#e5e5e5")
+    _draw_shadow(ax, screen)
+    norm = Normalize(e.min(), e.max() if e.max() > e.min() else e.min() + 1)
+    cmap = colormaps["plasma"]
+    # label the lowest orders only, so that the figure stays readable
+    gnorm = np.linalg.norm(sweep.base.g[sweep.index], axis=1)
+    labelled = set(np.argsort(gnorm, kind="stable")[:MAX_TRAJECTORY_LABELS].tolist())
+    for j in range(px.shape[1]):
+        p = np.where(vis[:, j, None], px[:, j], np.nan)
+        ok = np.isfinite(p[:, 0])
+        if ok.sum() >= 2:
+            seg = np.stack([p[:-1], p[1:]], axis=1)
+            good = ok[:-1] & ok[1:]
+            lc = LineCollection(seg[good], cmap=cmap, norm=norm, linewidths=1.6)
+            lc.set_array(0.5 * (e[:-1] + e[1:])[good])
+            ax.add_collection(lc)
+        if not ok.any():
+            continue
+        first = np.flatnonzero(ok)[0]
+        integer = sweep.base.integer[sweep.index[j]]
+        entering = sweep.onset[j] > e[0]
+        ax.plot(*p[first], marker="h" if integer else "o", ms=5 if entering else 3,
+                color=cmap(norm(e[first])), mec="#ffffff" if entering else "none", mew=0.5)
+        if j in labelled:
+            text = _label(sweep.hk[j]) + (f"\n{sweep.onset[j]:.0f} eV" if entering else "")
+            ax.annotate(text, p[first], xytext=(3, 3), textcoords="offset points", fontsize=5.5,
+                        color="#e5e5e5")
+    fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, label="energy (eV)", shrink=0.8)
+    ax.set_xlim(-0.5, screen.width - 0.5)
+    ax.set_ylim(screen.height - 0.5, -0.5)
+    ax.set_aspect("equal")
+    ax.set_xlabel("x (px)")
+    ax.set_ylabel("y (px)")
+    where = _title(sweep.base).split(", ", 1)[1]
+    ax.set_title(
+        f"Spot trajectories {e.min():g}\u2013{e.max():g} eV ({where}); "
+        "ringed dots: where a beam enters the screen (onset energy)",
+        fontsize=9,
+    )
+    save_figure(fig, path, force)
+
+
+def animate_sweep(sweep, screen, path, force: bool = False, max_frames: int = 120, fps: int = 8) -> None:
+    """A GIF animation of the pattern on the screen through the energy range (matplotlib + Pillow)."""
+    import matplotlib.pyplot as plt
+    from matplotlib.animation import FuncAnimation, PillowWriter
+
+    from surfgeo.io import atomic_output
+
+    px, vis = sweep.screen_positions(screen)
+    e = sweep.energies
+    frames = np.unique(np.linspace(0, len(e) - 1, min(len(e), max_frames)).round().astype(int))
+    base = sweep.base
+    integer = np.array([base.integer[i] for i in sweep.index])
+    inten = sweep.intensity
+    fig = figure(figsize=(5.4, 5.6))
+    ax = fig.add_subplot(1, 1, 1)
+    ax.set_facecolor(SCREEN_BACKGROUND)
+    rim = screen.rim()
+    ax.plot(rim[:, 0], rim[:, 1], ls="--", lw=0.8, color="#e5e5e5")
+    _draw_shadow(ax, screen)
+    ax.set_xlim(-0.5, screen.width - 0.5)
+    ax.set_ylim(screen.height - 0.5, -0.5)
+    ax.set_aspect("equal")
+    ax.set_xticks([])
+    ax.set_yticks([])
+    nd = len(base.domain_records)
+    colours = []
+    for j, i in enumerate(sweep.index):
+        ds = base.domains[i]
+        if integer[j]:
+            colours.append(SCREEN_INTEGER_COLOUR)
+        elif len(ds) == 1 or nd == 1:
+            colours.append(DOMAIN_COLOURS[ds[0] % 12])
+        else:
+            colours.append(SHARED_COLOUR)
+    colours = np.array(colours, dtype=object)
+    dots = ax.scatter(np.empty(0), np.empty(0), s=np.empty(0), zorder=3)
+    title = ax.set_title("", fontsize=10)
+
+    def update(f):
+        ok = vis[f] & np.isfinite(px[f, :, 0])
+        if inten is not None:
+            row = np.nan_to_num(inten[f])
+            top = row[ok].max() if ok.any() and row[ok].max() > 0 else 1.0
+            size = 8 + 150 * np.sqrt(np.clip(row / top, 0, 1))
+        else:
+            size = np.where(integer, 60.0, 40.0)
+        dots.set_offsets(px[f, ok] if ok.any() else np.empty((0, 2)))
+        dots.set_sizes(size[ok])
+        dots.set_facecolor(list(colours[ok]))
+        dots.set_edgecolor("none")
+        title.set_text(f"{e[f]:.1f} eV \u2014 {ok.sum()} beams on the screen")
+        return dots, title
+
+    anim = FuncAnimation(fig, update, frames=frames, blit=False)
+    try:
+        with atomic_output(path, force) as tmp:
+            anim.save(str(tmp), writer=PillowWriter(fps=fps))
+    finally:
+        plt.close(fig)
