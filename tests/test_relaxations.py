@@ -142,9 +142,10 @@ def test_fixed_atoms_are_reported():
     ("fcc", "fcc hollow", 1 / math.sqrt(3)),
     ("hcp", "hcp hollow", 1 / math.sqrt(3)),
 ])
-def test_adsorbate_sites_on_fcc111(site, label, rho):
+@pytest.mark.parametrize("size", [(1, 1, 4), (2, 2, 4), (3, 3, 4)])
+def test_adsorbate_sites_on_fcc111(site, label, rho, size):
     h = 1.3
-    slab = fcc111("Pt", (2, 2, 4), a=A_PT, vacuum=7.0)
+    slab = fcc111("Pt", size, a=A_PT, vacuum=7.0)
     add_adsorbate(slab, "O", h, site)
     slab.info.pop("adsorbate_info", None)
     rel = slab.copy()

@@ -581,15 +581,27 @@ class RelaxationReport:
         return "\n".join(out)
 
 
+def _lateral_nearest(points: np.ndarray, layer_xy: np.ndarray, lattice: np.ndarray, k: int) -> np.ndarray:
+    """Sorted lateral distances (N, <=k) from ``points`` to the nearest atoms of a layer (periodic)."""
+    from scipy.spatial import cKDTree
+
+    _, img = _images(layer_xy, lattice)
+    k = min(k, len(img))
+    wrapped, _ = _images(points, lattice)
+    dist, _ = cKDTree(img).query(wrapped, k=k)
+    return np.asarray(dist, dtype=float).reshape(len(points), k)
+
+
 def _layer_nn(lat_xy: np.ndarray, lattice: np.ndarray) -> float:
     """Shortest lateral distance between atoms of one layer (periodic images included)."""
+    from scipy.spatial import cKDTree
+
     red = Lattice2D(lattice).reduced()[0].vectors
-    best = float(np.linalg.norm(red[0]))
+    best = float(np.linalg.norm(red[0]))  # an atom and its own image
     if len(lat_xy) > 1:
-        d = _minimum_image_2d(lat_xy[:, None, :] - lat_xy[None, :, :], lattice)
-        r = np.linalg.norm(d, axis=-1)
-        r[np.diag_indices(len(lat_xy))] = np.inf
-        best = min(best, float(r.min()))
+        wrapped, img = _images(lat_xy, lattice)
+        dist, _ = cKDTree(img).query(wrapped, k=2)
+        best = min(best, float(dist[:, 1].min()))
     return best
 
 
@@ -702,45 +714,62 @@ def analyse_relaxation(reference, relaxed, *, method: str = "auto", adsorbates=N
     )
 
 
+#: Candidate substrate neighbours examined per adsorbate atom when listing bonds.
+BOND_CANDIDATES = 16
+
+
 def _adsorbate_changes(reference, ads_idx, layers, p, q, d, lattice, bond_tol) -> list[AdsorbateChange]:
+    """Heights, bonds and sites of the adsorbate atoms (vectorised over adsorbates per face)."""
+    from scipy.spatial import cKDTree
+
     if len(ads_idx) == 0 or not layers:
         return []
     symbols = reference.get_chemical_symbols()
-    top, bottom = layers[0], layers[-1]
-    sub = np.concatenate(layers)
-    out = []
-    # vectorised over adsorbates x substrate atoms: relaxed and ideal distances (minimum image)
-    dr = q[ads_idx, None, :] - q[None, sub, :]
-    dr[..., :2] = _minimum_image_2d(dr[..., :2], lattice)
-    dist = np.linalg.norm(dr, axis=-1)
+    h_top, h_bottom = p[layers[0], 2].mean(), p[layers[-1], 2].mean()
+    hz = p[ads_idx, 2]
+    side = np.where(hz >= h_top, "top", np.where(hz <= h_bottom, "bottom", "inside"))
 
+    # bonds: nearest substrate atoms in the relaxed structure, through a tree of periodic images
+    sub = np.concatenate(layers)
+    k = min(BOND_CANDIDATES, 9 * len(sub))
+    sub_w, sub_img = _images(q[sub, :2], lattice)
+    tree = cKDTree(np.column_stack([sub_img, np.tile(q[sub, 2], 9)]))
+    ads_w, _ = _images(q[ads_idx, :2], lattice)
+    dist, idx = tree.query(np.column_stack([ads_w, q[ads_idx, 2]]), k=k)
+    dist, idx = dist.reshape(len(ads_idx), k), idx.reshape(len(ads_idx), k) % len(sub)
+
+    sites: dict[str, np.ndarray] = {"ideal": np.empty(len(ads_idx), dtype=object),
+                                    "relaxed": np.empty(len(ads_idx), dtype=object)}
+    outer_height = {"ideal": np.empty(len(ads_idx)), "relaxed": np.empty(len(ads_idx))}
+    sign = np.where(side == "bottom", -1.0, 1.0)
+    for face in ("top", "bottom", "inside"):
+        sel = np.nonzero(side == face)[0]
+        if not len(sel):
+            continue
+        order = layers if face != "bottom" else layers[::-1]
+        lay = [order[s] if s < len(order) else None for s in range(3)]
+        a_nn = _layer_nn(p[lay[0], :2], lattice)
+        for name, pos in (("ideal", p), ("relaxed", q)):
+            at = pos[ads_idx[sel], :2]
+            rho = [None if L is None else _lateral_nearest(at, pos[L, :2], lattice, 6 if s == 0 else 1)
+                   for s, L in enumerate(lay)]
+            for r, j in enumerate(sel):
+                sites[name][j] = _site_label(*(None if x is None else x[r] for x in rho), a_nn)
+            outer_height[name][sel] = pos[lay[0], 2].mean()
+
+    out = []
     for j, i in enumerate(ads_idx):
-        hi = p[i, 2]
-        if hi >= p[top, 2].mean():
-            side, outer, sign = "top", 0, 1.0
-        elif hi <= p[bottom, 2].mean():
-            side, outer, sign = "bottom", len(layers) - 1, -1.0
-        else:
-            side, outer, sign = "inside", 0, 1.0
-        step = 1 if outer == 0 else -1
-        lay = [layers[outer + step * s] if 0 <= outer + step * s < len(layers) else None for s in range(3)]
-        sites = []
-        for pos in (p, q):
-            rho = [None if L is None else np.linalg.norm(
-                _minimum_image_2d(pos[i, :2] - pos[L, :2], lattice), axis=-1) for L in lay]
-            a_nn = _layer_nn(p[lay[0], :2], lattice)
-            sites.append(_site_label(rho[0], rho[1], rho[2], a_nn))
-        order = np.argsort(dist[j])
-        near = dist[j, order[0]]
-        keep = order[dist[j, order] <= near * (1.0 + bond_tol)]
-        bonds = [{"atom": int(sub[k]), "symbol": symbols[sub[k]], "length": float(dist[j, k])} for k in keep]
+        keep = dist[j] <= dist[j, 0] * (1.0 + bond_tol)
+        # in small cells one atom can be bonded through several periodic images: each is a bond
+        bonds = [{"atom": int(a), "symbol": symbols[a], "length": float(r)}
+                 for a, r in zip(sub[idx[j, keep]], dist[j, keep], strict=True)]
         out.append(AdsorbateChange(
-            index=int(i), symbol=symbols[i], side=side,
-            height_ideal=float(sign * (p[i, 2] - p[lay[0], 2].mean())),
-            height=float(sign * (q[i, 2] - q[lay[0], 2].mean())),
+            index=int(i), symbol=symbols[i], side=str(side[j]),
+            height_ideal=float(sign[j] * (p[i, 2] - outer_height["ideal"][j])),
+            height=float(sign[j] * (q[i, 2] - outer_height["relaxed"][j])),
             displacement=tuple(float(x) for x in d[i]),
             lateral_shift=float(np.hypot(d[i, 0], d[i, 1])),
-            site_ideal=sites[0], site=sites[1], bonds=bonds,
+            site_ideal=str(sites["ideal"][j]), site=str(sites["relaxed"][j]), bonds=bonds,
         ))
     return out
 
