@@ -48,3 +48,30 @@ def layer_heights(heights, layers: list[np.ndarray]) -> np.ndarray:
     if z.ndim == 2:
         z = z[:, -1]
     return np.array([z[idx].mean() for idx in layers])
+
+
+def slab_layers(atoms, tol: float | None = None) -> list[np.ndarray]:
+    """The atomic layers of a slab's substrate, from the bottom layer to the top layer.
+
+    A slab built by surfgeo carries its layer numbers in ``tags`` (1 = top layer, ASE's
+    convention; 0 = adsorbate), which stays right for closely spaced layers of high-index
+    faces and after relaxations. Other slabs are grouped by height with ``tol`` (default
+    :data:`LAYER_TOL`). Atoms tagged 0 (adsorbates) are left out when tags are used.
+
+    Returns
+    -------
+    list of ndarray of int
+        Atom indices of each layer, bottom first.
+    """
+    record = atoms.info.get("surfgeo") or {}
+    tags = np.asarray(atoms.get_tags())
+    if record.get("layers_from_tags") and tags.size and tags.max() > 0:
+        numbers = np.unique(tags[tags > 0])[::-1]  # deepest (largest tag) first
+        order = np.argsort(-tags, kind="stable")
+        sorted_tags = tags[order]
+        keep = sorted_tags > 0
+        order, sorted_tags = order[keep], sorted_tags[keep]
+        bounds = np.searchsorted(-sorted_tags, -numbers)
+        parts = np.split(order, bounds[1:])
+        return [np.sort(p) for p in parts]
+    return group_layers(np.asarray(atoms.positions)[:, 2], LAYER_TOL if tol is None else tol)
