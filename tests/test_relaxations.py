@@ -337,3 +337,24 @@ def test_adatoms_marked_by_the_model_builder(tmp_path):
     # Source: ASE's add_adsorbate "hcp" site and height.
     assert ads.site == "hcp hollow" and ads.height == pytest.approx(2.2, abs=1e-6)
     assert len(report.layers) == 4
+
+
+def test_adsorbates_on_both_faces():
+    slab = fcc100("Cu", (2, 2, 5), vacuum=7.0)
+    add_adsorbate(slab, "O", 0.9, "hollow")
+    slab.info.pop("adsorbate_info", None)
+    z = slab.positions[:, 2]
+    bottom_hollow = slab.positions[(slab.get_tags() == 4)][0].copy()  # over a 4th-layer atom
+    bottom_hollow[2] = z[slab.get_tags() == 5].min() - 0.9
+    slab.append("O")
+    slab.positions[-1] = bottom_hollow
+    rel = slab.copy()
+    rel.positions[-1, 2] += 0.05  # the bottom O moves towards the slab: 0.05 A lower height
+    report = analyse_relaxation(slab, rel)
+    sides = {a.side: a for a in report.adsorbates}
+    assert set(sides) == {"top", "bottom"}
+    # Source: the construction above (heights measured outwards from each face).
+    assert sides["top"].height == pytest.approx(0.9, abs=1e-9)
+    assert sides["bottom"].height_ideal == pytest.approx(0.9, abs=1e-9)
+    assert sides["bottom"].height == pytest.approx(0.85, abs=1e-9)
+    assert sides["bottom"].site == "fourfold hollow" == sides["top"].site

@@ -372,10 +372,11 @@ def find_adsorbates(atoms, heights: np.ndarray | None = None, select=None,
         or ``"none"``. ``None`` detects them: atoms marked by the model builder (per-atom
         arrays :data:`MARK_ARRAYS`, adsorbate molecules and overlayer films) when any are
         marked; otherwise the substrate species are those of the bulk in the slab's
-        metadata (``atoms.info["surfgeo"]["bulk"]``) or else those of the bottom layer,
-        and an atom is an adsorbate when it is not of a substrate species and lies in a
-        layer without substrate-species atoms (a surface alloy atom in a substrate layer
-        is not an adsorbate).
+        metadata (``atoms.info["surfgeo"]["bulk"]``) or else the species found in more
+        than half as many layers as the most widespread species, and an atom is an
+        adsorbate when it lies in a layer without substrate-species atoms (so a surface
+        alloy atom in a substrate layer is not an adsorbate). Very thin slabs may need an
+        explicit choice.
 
     Returns
     -------
@@ -415,7 +416,12 @@ def find_adsorbates(atoms, heights: np.ndarray | None = None, select=None,
     layers = group_layers(heights, tol)
     if not layers:
         return mask
-    substrate = _bulk_species(atoms.info.get("surfgeo")) or set(symbols[layers[0]].tolist())
+    substrate = _bulk_species(atoms.info.get("surfgeo"))
+    if not substrate:
+        # species spread through more than half as many layers as the most widespread one
+        counts = Counter(sym for layer in layers for sym in set(symbols[layer].tolist()))
+        most = max(counts.values())
+        substrate = {sym for sym, c in counts.items() if 2 * c > most}
     is_sub = np.isin(symbols, sorted(substrate))
     for layer in layers:
         if not is_sub[layer].any():
