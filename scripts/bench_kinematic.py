@@ -29,9 +29,9 @@ A_SURF = A_CU / np.sqrt(2.0)
 LAYER = A_CU / 2.0
 
 
-def synthetic_slab(n_cell: int, layers: int, seed: int = 1):
+def synthetic_slab(n_cell: int, layers: int, random_state: int = 1):
     """(n_cell x n_cell) Cu(100)-like slab; the top layer displaced pseudo-randomly (synthetic)."""
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(random_state)
     m, n = np.meshgrid(np.arange(n_cell), np.arange(n_cell), indexing="ij")
     base = np.column_stack([m.ravel(), n.ravel()]) * A_SURF
     pos = []

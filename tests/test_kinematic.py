@@ -416,12 +416,12 @@ def test_beam_blocks_in_the_sweep(monkeypatch):
 @settings(max_examples=25, deadline=None)
 @given(
     shift=st.tuples(*(st.floats(-10, 10),) * 3),
-    seed=st.integers(0, 2**16),
+    key=st.integers(0, 2**16),
     theta=st.floats(0, 60),
     phi=st.floats(0, 360),
 )
-def test_rigid_translation_and_permutation_invariance(shift, seed, theta, phi):
-    rng = np.random.default_rng(seed)
+def test_rigid_translation_and_permutation_invariance(shift, key, theta, phi):
+    rng = np.random.default_rng(key)
     pos, num = _random_model(rng, 12)
     g = rng.uniform(-2, 2, size=(6, 2))
     ref = kinematic_intensities(pos, num, g, 110.0, (theta, phi))
