@@ -53,7 +53,8 @@ def register(subparsers, common) -> None:
     p.add_argument("--vacuum", type=float, default=None, metavar="V",
                    help="reset the vacuum to V Angstrom (atoms keep their positions)")
     p.add_argument("--layer-tol", type=float, default=None, metavar="T",
-                   help="atoms closer than T Angstrom in height share a layer (default 0.3)")
+                   help="atoms closer than T Angstrom in height share a layer (default 0.3, or half "
+                   "the bulk layer spacing recorded in the model when that is smaller)")
     p.add_argument("--pseudo", action="append", default=[], metavar="SYMBOL=FILE",
                    help="pseudopotential file of a species for the pw.x input (repeat per species)")
     p.add_argument("--no-note", action="store_true", help="do not write the companion note file")

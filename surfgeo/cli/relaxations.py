@@ -47,7 +47,8 @@ def register(subparsers, common) -> None:
                    help="adsorbate atoms: species (O,C), indices of the reference (36,37) or 'none' "
                    "(default: detected)")
     p.add_argument("--layer-tol", type=float, default=None, metavar="T",
-                   help="atoms closer than T Angstrom in height share a layer (default 0.3)")
+                   help="atoms closer than T Angstrom in height share a layer (default 0.3, or half "
+                   "the bulk layer spacing recorded in the model when that is smaller)")
     p.add_argument("--max-shift", type=float, default=2.0, metavar="D",
                    help="refuse when an atom moved more than D Angstrom (default 2.0)")
     add_output_options(p, plot=True)
