@@ -358,3 +358,9 @@ def test_adsorbates_on_both_faces():
     assert sides["bottom"].height_ideal == pytest.approx(0.9, abs=1e-9)
     assert sides["bottom"].height == pytest.approx(0.85, abs=1e-9)
     assert sides["bottom"].site == "fourfold hollow" == sides["top"].site
+
+
+def test_mark_arrays_are_those_of_the_model_builder():
+    from surfgeo.slab.supercell import ADSORBATE_KEY, SUBLATTICE_KEY
+
+    assert set(relaxations.MARK_ARRAYS) == {ADSORBATE_KEY, SUBLATTICE_KEY}
