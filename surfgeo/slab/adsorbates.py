@@ -229,7 +229,8 @@ def check_contacts(atoms, factor: float = CONTACT_FACTOR, minimum: float | None 
                                                           + covalent_radii[atoms.numbers[j]])
     raise StructureError(
         f"{what} puts atoms {i} ({s[i]}) and {j} ({s[j]}) {d:.2f} A apart, closer than the minimum "
-        f"{need:.2f} A ({len(bad)} such pair(s)); raise the height or choose other sites."
+        f"{need:.2f} A ({len(bad)} such pair(s)); raise the height or bond length, or choose "
+        "other sites."
     )
 
 
@@ -396,6 +397,13 @@ def add_adsorbate(
         z = zref + float(height)
     else:
         z = _bond_height(atoms, sub_mask, xy, float(bond_length), what)
+        low = zref - z
+        if np.any(low > 1e-6):
+            raise StructureError(
+                f"{what}: bond_length {float(bond_length):.3f} A would put the adsorbate "
+                f"{float(low.max()):.2f} A below the surface atoms around the site (it fits between "
+                "them); give a longer bond_length, or a height for a subsurface position."
+            )
     rel, _ = oriented(mol, anchor, tilt, azimuth)
 
     new = copy_slab(atoms)
