@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import weakref
 from dataclasses import dataclass
+from fractions import Fraction
 
 import numpy as np
 
@@ -35,13 +36,18 @@ FLOAT_TOL = 1e-6
 _GROUP_CACHE: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 
 
+def _group(lattice: Lattice2D) -> tuple[list[PointOperation], list[tuple[int, int, int, int]]]:
+    entry = _GROUP_CACHE.get(lattice)
+    if entry is None:
+        ops = lattice.point_group()
+        entry = (ops, _int_ops(ops))
+        _GROUP_CACHE[lattice] = entry
+    return entry
+
+
 def point_group_of(lattice: Lattice2D) -> list[PointOperation]:
     """``lattice.point_group()``, computed once per lattice object and cached."""
-    ops = _GROUP_CACHE.get(lattice)
-    if ops is None:
-        ops = lattice.point_group()
-        _GROUP_CACHE[lattice] = ops
-    return ops
+    return list(_group(lattice)[0])
 
 
 @dataclass(frozen=True, eq=False)
@@ -133,11 +139,11 @@ def stabiliser(lattice: Lattice2D, M) -> list[PointOperation]:
     """The substrate operations W that map the superlattice of M onto itself
     (``M W M^-1`` in GL(2, Z))."""
     Mx = as_matrix(M)
-    ops = point_group_of(lattice)
+    ops, wops = _group(lattice)
     if is_exact(Mx):
         den = common_denominator(Mx)
         N = tuple(int(v * den) for v in Mx.ravel())
-        idx = _stabiliser_int(N, _int_ops(ops))
+        idx = _stabiliser_int(N, wops)
     else:
         idx = _stabiliser_float(to_float(Mx), ops)
     return [ops[i] for i in idx]
@@ -169,26 +175,32 @@ def symmetry_domains(lattice: Lattice2D, M, operations: list[PointOperation] | N
     3
     """
     Mx = as_matrix(M)
-    ops = list(operations) if operations is not None else point_group_of(lattice)
-    wops = _int_ops(ops)
-    if is_exact(Mx):
+    if operations is not None:
+        ops = list(operations)
+        wops = _int_ops(ops)
+    else:
+        ops, wops = _group(lattice)
+    exact = is_exact(Mx)
+    if exact:
         den = common_denominator(Mx)
         N = tuple(int(v * den) for v in Mx.ravel())
         stab = _stabiliser_int(N, wops)
     else:
-        stab = _stabiliser_float(to_float(Mx), ops)
+        Mf = to_float(Mx)
+        stab = _stabiliser_float(Mf, ops)
     out = []
     for coset in _cosets(stab, wops):
         w = wops[coset[0]]
-        if is_exact(Mx):
-            m11, m12, m21, m22 = Mx.ravel()
+        if exact:
+            # integer products, one division by the common denominator at the end
+            n11, n12, n21, n22 = N
+            prod = (n11 * w[0] + n12 * w[2], n11 * w[1] + n12 * w[3],
+                    n21 * w[0] + n22 * w[2], n21 * w[1] + n22 * w[3])
             mat = np.empty((2, 2), dtype=object)
-            mat[:] = [
-                [m11 * w[0] + m12 * w[2], m11 * w[1] + m12 * w[3]],
-                [m21 * w[0] + m22 * w[2], m21 * w[1] + m22 * w[3]],
-            ]
+            vals = [Fraction(v) for v in prod] if den == 1 else [Fraction(v, den) for v in prod]
+            mat[0, 0], mat[0, 1], mat[1, 0], mat[1, 1] = vals
         else:
-            mat = to_float(Mx) @ np.array(w, dtype=float).reshape(2, 2)
+            mat = Mf @ np.array(w, dtype=float).reshape(2, 2)
         out.append(Domain(mat, tuple(ops[j] for j in coset)))
     return out
 
@@ -203,8 +215,7 @@ def distinct_superlattices(lattice: Lattice2D, n: int) -> list[tuple[np.ndarray,
         :func:`~surfgeo.lattice.hnf.hermite_normal_forms` among its domains; ``n_domains`` is
         the size of its orbit. The orbit sizes add up to sigma(n).
     """
-    ops = point_group_of(lattice)
-    wops = _int_ops(ops)
+    _, wops = _group(lattice)
     seen: set[tuple[int, int, int]] = set()
     out = []
     for H in hermite_normal_forms(n):

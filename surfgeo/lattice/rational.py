@@ -123,6 +123,10 @@ def as_matrix(M, field: str = "matrix") -> np.ndarray:
         isinstance(v, Fraction) for v in M.flat
     ):
         out = M
+    elif isinstance(M, np.ndarray) and M.dtype.kind in "iu" and M.shape in ((2, 2), (4,)):
+        out = np.empty((2, 2), dtype=object)
+        a, b, c, d = (Fraction(int(v)) for v in M.ravel())
+        out[0, 0], out[0, 1], out[1, 0], out[1, 1] = a, b, c, d
     else:
         try:
             arr = np.array(M, dtype=object)

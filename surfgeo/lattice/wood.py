@@ -171,6 +171,10 @@ _WOOD = re.compile(
 
 def _parse_factor(text: str, which: str, whole: str) -> tuple[Surd | float, int | None]:
     s = text.lower()
+    if not s:
+        raise NotationError(
+            f"Wood notation {whole!r} lacks scale factor {which}; write two, as in {_EXAMPLES}."
+        )
     m = _FACTOR.match(s)
     if not s or not m or (m.group("c") is None and m.group("r") is None):
         raise NotationError(
@@ -288,6 +292,11 @@ def _exact_unrotated(lattice: Lattice2D, wood: WoodNotation) -> np.ndarray | Non
 def _matches(form: WoodNotation, wood: WoodNotation, dp: float, dq: float, dphi: float) -> bool:
     if form.centred != wood.centred:
         return False
+    # exact scale factors must come back exactly
+    if dp == 0.0 and isinstance(wood.p, Surd) and form.p != wood.p:
+        return False
+    if dq == 0.0 and isinstance(wood.q, Surd) and form.q != wood.q:
+        return False
     if abs(float(form.p) - float(wood.p)) > dp + 1e-9 * float(wood.p):
         return False
     if abs(float(form.q) - float(wood.q)) > dq + 1e-9 * float(wood.q):
@@ -371,14 +380,44 @@ def wood_to_matrix(lattice: Lattice2D, wood: WoodNotation | str) -> np.ndarray:
 
 
 # --------------------------------------------------------------------------- matrix -> Wood
-def _lattice_points(B: np.ndarray, radius: float):
-    """Integer coordinates k (in the basis B) and Cartesian vectors of all nonzero lattice
-    points with |k B| <= radius."""
-    red, T = Lattice2D(B).reduced()
-    r1, r2 = red.vectors
-    area = abs(float(np.linalg.det(red.vectors)))
-    nx = int(radius * np.linalg.norm(r2) / area) + 1
-    ny = int(radius * np.linalg.norm(r1) / area) + 1
+def _gauss_reduce(B: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Lagrange-Gauss reduction of the rows of ``B``: (reduced rows, integer T) with
+    reduced = T @ B and |r1| <= |r2|. Plain floats; cheaper than building a Lattice2D."""
+    (x1, y1), (x2, y2) = B.tolist()
+    t = [[1, 0], [0, 1]]
+    for _ in range(200):
+        n1, n2 = x1 * x1 + y1 * y1, x2 * x2 + y2 * y2
+        if n1 > n2:
+            x1, y1, x2, y2 = x2, y2, x1, y1
+            t = [t[1], t[0]]
+            n1 = n2
+        mu = round((x1 * x2 + y1 * y2) / n1)
+        if mu == 0:
+            break
+        x2, y2 = x2 - mu * x1, y2 - mu * y1
+        t[1] = [t[1][0] - mu * t[0][0], t[1][1] - mu * t[0][1]]
+    return np.array([[x1, y1], [x2, y2]]), np.array(t, dtype=np.int64)
+
+
+def _search(lattice: Lattice2D, Mf: np.ndarray) -> list[tuple[bool, float, float, float]]:
+    """(centred, p^2, q^2, phi in radians) of every Wood form of B = Mf A.
+
+    One pass over the superlattice vectors v1 (candidate first Wood vectors) up to the
+    largest length a centred form allows; for each, the second Wood vector
+    q R(phi) a2 is tested for membership (and the centre (w1 + w2) / 2 for centred forms).
+    """
+    A = lattice.vectors
+    B = Mf @ A
+    detm = abs(float(np.linalg.det(Mf)))
+    la1, la2 = lattice.lengths
+    red, T = _gauss_reduce(B)
+    r1, r2 = red
+    lam1 = math.hypot(*r1)
+    rad_p = detm * la1 * la2 / lam1  # both Wood vectors are at least lam1 long
+    rad_c = 2.0 * rad_p
+    area = abs(float(np.linalg.det(red)))
+    nx = int(rad_c * math.hypot(*r2) / area) + 1
+    ny = int(rad_c * lam1 / area) + 1
     if (2 * nx + 1) * (2 * ny + 1) > 4_000_000:
         raise NotationError(
             "this superlattice is too elongated for the Wood search (over four million candidate "
@@ -386,40 +425,33 @@ def _lattice_points(B: np.ndarray, radius: float):
         )
     xs, ys = np.meshgrid(np.arange(-nx, nx + 1), np.arange(-ny, ny + 1), indexing="ij")
     xy = np.stack([xs.ravel(), ys.ravel()], axis=1)
-    v = xy @ red.vectors
-    n2 = np.einsum("ij,ij->i", v, v)
-    keep = (n2 <= radius * radius * (1 + 1e-9)) & (n2 > 0)
-    return xy[keep] @ T, v[keep]
-
-
-def _forms(lattice: Lattice2D, Mf: np.ndarray, centred: bool) -> list[tuple]:
-    A = lattice.vectors
-    B = Mf @ A
-    detm = abs(float(np.linalg.det(Mf)))
-    factor = 2.0 if centred else 1.0
-    la1, la2 = lattice.lengths
-    lam1 = Lattice2D(B).reduced()[0].lengths[0]
-    radius = factor * detm * la1 * la2 / lam1
-    k1, v1 = _lattice_points(B, radius)
+    v1 = xy @ red
+    n2 = np.einsum("ij,ij->i", v1, v1)
+    keep = (n2 <= rad_c * rad_c * (1 + 1e-9)) & (n2 > 0)
+    k1, v1, n2 = xy[keep] @ T, v1[keep], n2[keep]
     a1, a2 = A
-    cross = a1[0] * v1[:, 1] - a1[1] * v1[:, 0]
-    dot = v1 @ a1
-    phi = np.arctan2(cross, dot)
-    p2 = np.einsum("ij,ij->i", v1, v1) / (la1 * la1)
+    phi = np.arctan2(a1[0] * v1[:, 1] - a1[1] * v1[:, 0], v1 @ a1)
+    p2 = n2 / (la1 * la1)
     p = np.sqrt(p2)
-    q = factor * detm / p
     c, s = np.cos(phi), np.sin(phi)
-    v2 = np.stack([c * a2[0] - s * a2[1], s * a2[0] + c * a2[1]], axis=1) * q[:, None]
-    k2 = v2 @ np.linalg.inv(B)
-    k2r = np.rint(k2)
-    ok = np.all(np.abs(k2 - k2r) <= MEMBER_TOL * np.maximum(1.0, np.abs(k2)), axis=1)
-    if centred:
-        ok &= np.all((k1 + k2r.astype(np.int64)) % 2 == 0, axis=1)
+    dir2 = np.stack([c * a2[0] - s * a2[1], s * a2[0] + c * a2[1]], axis=1)
+    Binv = np.linalg.inv(B)
     out = []
-    for i in np.nonzero(ok)[0]:
-        vb = k2r[i] @ B
-        q2 = float(vb @ vb) / (la2 * la2)
-        out.append((float(p2[i]), q2, float(phi[i])))
+    for centred in (False, True):
+        factor = 2.0 if centred else 1.0
+        sel = n2 <= (rad_c if centred else rad_p) ** 2 * (1 + 1e-9)
+        k2 = (dir2[sel] * (factor * detm / p[sel])[:, None]) @ Binv
+        k2r = np.rint(k2)
+        ok = np.all(np.abs(k2 - k2r) <= MEMBER_TOL * np.maximum(1.0, np.abs(k2)), axis=1)
+        if centred:
+            ok &= np.all((k1[sel] + k2r.astype(np.int64)) % 2 == 0, axis=1)
+        idx = np.nonzero(ok)[0]
+        if idx.size == 0:
+            continue
+        vb = k2r[idx] @ B
+        q2 = np.einsum("ij,ij->i", vb, vb) / (la2 * la2)
+        out.extend(zip([centred] * idx.size, p2[sel][idx].tolist(), q2.tolist(), phi[sel][idx].tolist(),
+                       strict=True))
     return out
 
 
@@ -451,20 +483,19 @@ def matrix_to_wood(lattice: Lattice2D, M) -> list[WoodNotation]:
     Mx = as_matrix(M)
     Mf = to_float(Mx)
     found: dict[tuple, WoodNotation] = {}
-    for centred in (False, True):
-        for p2, q2, phi in _forms(lattice, Mf, centred):
-            deg = math.degrees(phi)
-            deg = (deg + 90.0) % 180.0 - 90.0
-            if deg <= -90.0 + 1e-9:
-                deg += 180.0
-            if abs(deg) < 1e-9:
-                deg = 0.0
-            key = (centred, round(p2, 8), round(q2, 8), round(deg, 7))
-            if key in found:
-                continue
-            p = Surd.recognise(p2) or math.sqrt(p2)
-            q = Surd.recognise(q2) or math.sqrt(q2)
-            found[key] = WoodNotation(p, q, deg, centred)
+    for centred, p2, q2, phi in _search(lattice, Mf):
+        deg = math.degrees(phi)
+        deg = (deg + 90.0) % 180.0 - 90.0
+        if deg <= -90.0 + 1e-9:
+            deg += 180.0
+        if abs(deg) < 1e-9:
+            deg = 0.0
+        key = (centred, round(p2, 8), round(q2, 8), round(deg, 7))
+        if key in found:
+            continue
+        p = Surd.recognise(p2) or math.sqrt(p2)
+        q = Surd.recognise(q2) or math.sqrt(q2)
+        found[key] = WoodNotation(p, q, deg, centred)
     return sorted(found.values(), key=_preference)
 
 
