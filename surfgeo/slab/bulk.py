@@ -473,7 +473,11 @@ def translation_lattice(bulk: Atoms, symprec: float = 1e-3) -> np.ndarray:
     from fractions import Fraction
 
     cell = np.asarray(bulk.cell[:], dtype=float)
-    sym = spglib_call("get_symmetry", (cell, bulk.get_scaled_positions(), bulk.numbers), symprec=symprec)
+    frac = bulk.get_scaled_positions()
+    key = (cell.tobytes(), frac.tobytes(), np.asarray(bulk.numbers).tobytes(), float(symprec))
+    if key in _TL_CACHE:
+        return _TL_CACHE[key].copy()
+    sym = spglib_call("get_symmetry", (cell, frac, bulk.numbers), symprec=symprec)
     if sym is None:
         raise StructureError("spglib could not find the symmetry of the bulk crystal.")
     eye = np.eye(3, dtype=int)
@@ -491,7 +495,14 @@ def translation_lattice(bulk: Atoms, symprec: float = 1e-3) -> np.ndarray:
         for r in g:
             rows.append(np.rint(np.array(r) * den).astype(np.int64))
     basis = _integer_row_basis(np.array(rows, dtype=np.int64))
-    return (basis / den) @ cell
+    out = (basis / den) @ cell
+    if len(_TL_CACHE) > 64:
+        _TL_CACHE.clear()
+    _TL_CACHE[key] = out
+    return out.copy()
+
+
+_TL_CACHE: dict[tuple, np.ndarray] = {}
 
 
 def _integer_row_basis(rows: np.ndarray) -> np.ndarray:

@@ -264,11 +264,13 @@ def _choose_basis(k1: np.ndarray, k2: np.ndarray, n: np.ndarray) -> tuple[np.nda
     short = cands3[lens <= lmin * (1 + 1e-6)]
     area = abs(float(np.linalg.det(red.vectors)))
     best = None
-    for v in short:
-        v2 = E @ v
+    short2 = short @ E.T
+    for v, v2 in zip(short, short2, strict=True):
         cross = v2[0] * cands2[:, 1] - v2[1] * cands2[:, 0]
         idx = np.nonzero(np.abs(cross - area) <= 1e-6 * area)[0]
-        j = min(idx, key=lambda i: (round(float(lens[i]), 6), round(float(cands2[i] @ v2), 6)))
+        dots = cands2[idx] @ v2
+        keys = np.round(lens[idx], 6) * 1e6 + np.round(dots, 6) / (1.0 + 4.0 * lmin * lmin)
+        j = int(idx[np.argmin(keys)])
         acute = float(cands2[j] @ v2) > 1e-9 * lmin * lmin
         key = (round(float(lens[j]), 6), acute, tuple(-np.round(v / np.linalg.norm(v), 6)))
         if best is None or key < best[0]:
@@ -277,17 +279,43 @@ def _choose_basis(k1: np.ndarray, k2: np.ndarray, n: np.ndarray) -> tuple[np.nda
     return a1, a2
 
 
+_OFFSETS = np.array(list(itertools.product((-1, 0, 1, 2), repeat=2)), dtype=float)
+
+
 def _reduce_inplane(vec2: np.ndarray, A: np.ndarray) -> np.ndarray:
     """The shortest vector vec2 + L over lattice vectors L of A (rows, 2D)."""
     f = vec2 @ np.linalg.inv(A)
-    base = np.floor(f)
-    best, best_len = None, np.inf
-    for di, dj in itertools.product((-1, 0, 1, 2), repeat=2):
-        cand = vec2 - (base + (di, dj)) @ A
-        ln = float(cand @ cand)
-        if ln < best_len - 1e-12:
-            best, best_len = cand, ln
-    return best
+    cands = vec2 - (np.floor(f) + _OFFSETS) @ A
+    ln = np.einsum("ij,ij->i", cands, cands)
+    return cands[int(np.argmin(ln + 1e-12 * np.arange(len(ln))))]
+
+
+def _primitive_miller(bulk: Atoms, hkl) -> tuple[np.ndarray, list[int]]:
+    """Primitive basis P (rows) and coprime integer Miller indices of hkl in that basis."""
+    C = np.asarray(bulk.cell[:], dtype=float)
+    P = translation_lattice(bulk)
+    P_frac = P @ np.linalg.inv(C)
+    # P_frac has small denominators: scale to integers once, then integer arithmetic
+    D = math.lcm(*[_rational(x).denominator for x in P_frac.ravel()])
+    Pi = np.rint(P_frac * D).astype(np.int64)
+    if np.any(np.abs(Pi - P_frac * D) > 1e-6):  # pragma: no cover - spglib translations are rational
+        raise StructureError("internal error: the primitive cell is not a rational multiple of the cell.")
+    mi = [int(v) for v in Pi @ np.array(hkl, dtype=np.int64)]
+    g = math.gcd(*mi)
+    return P, [v // g for v in mi]
+
+
+def plane_lattice(bulk, hkl) -> np.ndarray:
+    """Reduced basis (2 rows, bulk Cartesian frame, Angstrom) of the lattice vectors in the
+    (hkl) planes of ``bulk`` (conventional three-index Miller indices)."""
+    bulk = _as_bulk(bulk)
+    C = np.asarray(bulk.cell[:], dtype=float)
+    G = np.array(hkl, dtype=float) @ np.linalg.inv(C).T
+    n = G / np.linalg.norm(G)
+    P, mi = _primitive_miller(bulk, hkl)
+    k1, k2, _ = _unimodular_completion(mi)
+    a1, a2 = _choose_basis(k1 @ P, k2 @ P, n)
+    return np.array([a1, a2])
 
 
 def face_geometry(bulk, miller, layer_tol: float = LAYER_TOL) -> Face:
@@ -323,13 +351,7 @@ def face_geometry(bulk, miller, layer_tol: float = LAYER_TOL) -> Face:
     G = np.array(hkl, dtype=float) @ Cinv.T
     n = G / np.linalg.norm(G)
 
-    P = translation_lattice(bulk)
-    P_frac = P @ Cinv
-    mq = [sum((_rational(P_frac[i, j]) * hkl[j] for j in range(3)), Fraction(0)) for i in range(3)]
-    den = math.lcm(*[q.denominator for q in mq])
-    mi = [int(q * den) for q in mq]
-    g = math.gcd(*mi)
-    mi = [v // g for v in mi]
+    P, mi = _primitive_miller(bulk, hkl)
     k1, k2, u3 = _unimodular_completion(mi)
     K1, K2, U = k1 @ P, k2 @ P, u3 @ P
     d = float(U @ n)
@@ -777,7 +799,7 @@ def slab_from_face(
     pos = F @ Bm
     # origin: the first atom of the top layer sits at x = y = 0
     pos[:, :2] -= pos[np.nonzero(tags == 1)[0][0], :2]
-    symbols = [face.basis_symbols[i] for i in sel]
+    sel_all = sel
 
     # ---- in-plane cell and supercell
     A = face.cell2d.copy()
@@ -801,11 +823,10 @@ def slab_from_face(
         full[:, :, :2] += pts[:, None, :]
         # keep layer-major order: for each atom position in the unit (bottom first), all replicas
         pos = full.transpose(1, 0, 2).reshape(-1, 3)
-        symbols = list(np.repeat(np.array(symbols, dtype=object), npts))
+        sel_all = np.repeat(sel_all, npts)
         tags = np.repeat(tags, npts)
         layer_order = np.argsort(-tags, kind="stable")
-        pos, tags = pos[layer_order], tags[layer_order]
-        symbols = [symbols[i] for i in layer_order]
+        pos, tags, sel_all = pos[layer_order], tags[layer_order], sel_all[layer_order]
     fr = pos[:, :2] @ np.linalg.inv(B)
     fr -= np.floor(fr + 1e-9)
     pos[:, :2] = fr @ B
@@ -835,7 +856,10 @@ def slab_from_face(
     _counts = np.diff(np.append(_first, len(tags)))
     _unit_heights = np.add.reduceat(pos[:, 2], _first) / _counts
 
-    atoms = Atoms(symbols, positions=pos, cell=cell, pbc=(True, True, True))
+    from ase.data import atomic_numbers
+
+    znum = np.array([atomic_numbers[x] for x in face.basis_symbols])
+    atoms = Atoms(numbers=znum[sel_all], positions=pos, cell=cell, pbc=(True, True, True))
     atoms.set_tags(tags)
 
     term = dict(terms[tidx])

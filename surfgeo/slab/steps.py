@@ -36,6 +36,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import itertools
 import math
 import re
@@ -82,8 +83,13 @@ def _hex_members(g) -> list[tuple[int, int, int]]:
     return sorted(out, reverse=True)
 
 
+@functools.lru_cache(maxsize=64)
+def _members_cached(structure: str, g: tuple[int, int, int]) -> tuple[tuple[int, int, int], ...]:
+    return tuple(_hex_members(g) if structure == "hcp" else _cubic_members(g))
+
+
 def _members(structure: str, g) -> list[tuple[int, int, int]]:
-    return _hex_members(g) if structure == "hcp" else _cubic_members(g)
+    return list(_members_cached(structure, tuple(int(v) for v in g)))
 
 
 def _metric(structure: str, c_over_a: float | None) -> np.ndarray:
@@ -250,29 +256,46 @@ def decompose(miller, structure: str, c_over_a: float | None = None) -> StepDeco
     G = _shortest_g(hkl, structure)
     Gm = _metric(structure, c_over_a)
     members = _all_members(structure)
+    Mx = np.array([m[2] for m in members], dtype=float)
+    ranks = np.array([m[0] for m in members])
+    D = Mx @ Gm @ Mx.T
+    dG = Mx @ Gm @ G.astype(float)
+    GG = float(G @ Gm @ G)
+    norm2 = np.diag(D)
 
     def dot(u, v):
         return float(np.asarray(u, float) @ Gm @ np.asarray(v, float))
 
-    def parallel(u, v):
-        return abs(dot(u, v) ** 2 - dot(u, u) * dot(v, v)) < 1e-9 * dot(u, u) * dot(v, v)
-
-    for _rank, _fam, g in members:
-        if parallel(g, G) and dot(g, G) > 0:
-            return StepDecomposition("flat", structure, ((1, _fam, tuple(int(x) for x in g)),))
-    pos = [(r, f, g) for r, f, g in members if dot(g, G) > 1e-9]
+    par_G = np.abs(dG**2 - norm2 * GG) < 1e-9 * norm2 * GG
+    flat = np.nonzero(par_G & (dG > 0))[0]
+    if flat.size:
+        _r, _fam, g = members[int(flat[0])]
+        return StepDecomposition("flat", structure, ((1, _fam, tuple(int(x) for x in g)),))
+    posi = np.nonzero(dG > 1e-9)[0]
+    pos = [members[i] for i in posi]
+    # stepped: G - g_s = c g_t with an integer c >= 1, over all pairs (t, s) at once
+    gt_all = Mx[posi][:, None, :]  # (P, 1, 3)
+    gs_all = Mx[posi][None, :, :]  # (1, P, 3)
+    Dp = D[np.ix_(posi, posi)]
+    n2 = norm2[posi]
+    ok = (Dp > 1e-9) & (np.abs(Dp**2 - n2[:, None] * n2[None, :]) > 1e-9 * n2[:, None] * n2[None, :])
+    R = G[None, None, :] - gs_all  # (1, P, 3)
+    gt_sq = np.sum(gt_all**2, axis=2)  # plain integer dot: exact multiples do not need the metric
+    c = np.sum(R * gt_all, axis=2) / gt_sq
+    ci = np.rint(c)
+    exact = np.all(np.abs(R - ci[:, :, None] * gt_all) < 1e-9, axis=2)
+    ok &= exact & (ci >= 1)
     best = None
-    for (rt, ft, gt), (rs, fs, gs) in itertools.product(pos, pos):
-        if parallel(gt, gs) or dot(gt, gs) <= 1e-9:
-            continue
-        c = _is_multiple(G - gs, gt)
-        if c is None:
-            continue
-        key = (c, -rt, -rs, tuple(gt), tuple(gs))
+    for ti, si in zip(*np.nonzero(ok), strict=True):
+        rt, ft, gt = pos[ti]
+        rs, fs, gs = pos[si]
+        key = (int(ci[ti, si]), -rt, -rs, tuple(gt), tuple(gs))
         if best is None or key > best[0]:
-            best = (key, ((c, ft, tuple(int(x) for x in gt)), (1, fs, tuple(int(x) for x in gs))))
+            terms = ((int(ci[ti, si]), ft, tuple(int(x) for x in gt)), (1, fs, tuple(int(x) for x in gs)))
+            best = (key, terms)
     if best is not None:
         return StepDecomposition("stepped", structure, best[1])
+    del ranks
     # kinked: terrace = the member closest in angle to G, then two more microfacets
     Gn = math.sqrt(dot(G, G))
     angle = sorted(pos, key=lambda m: (-dot(m[2], G) / math.sqrt(dot(m[2], m[2])) / Gn, m[0]))
@@ -516,13 +539,10 @@ def step_description(face, bulk=None) -> dict | None:
     steps_per_cell = math.gcd(*[abs(int(v)) for v in lev]) or 1
 
     # terrace lattice: shortest vectors of the terrace plane and row spacing across the edge
-    from surfgeo.slab.cut import face_geometry
+    from surfgeo.slab.cut import plane_lattice
 
     tmill = dec.terms[0][1]
-    tface = face_geometry(bulk, _member_miller(dec.terms[0][2], structure))
-    tcell3 = np.zeros((2, 3))
-    tcell3[:, :2] = tface.cell2d
-    tvecs = tcell3 @ tface.rotation  # back to bulk Cartesian
+    tvecs = plane_lattice(bulk, dec.terms[0][2])  # terrace lattice, bulk Cartesian
     n_atoms_prim = len(face.basis_symbols)
     area_atom_t = face.primitive_volume / n_atoms_prim / h
     edge_len = float(np.linalg.norm(s_edge))

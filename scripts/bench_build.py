@@ -1,0 +1,112 @@
+"""Benchmark of the slab builder against ase.build.surface, and a 10^5-atom slab.
+
+Rows printed (and returned by ``main``):
+
+* (533), (997), (110) Pt slabs of 20 layers as 10x10 supercells: surfgeo's
+  ``surface_slab`` (primitive reduced cell, layer analysis, terminations, step
+  description, surface record) against ``ase.build.surface`` for the same face with the
+  same ``layers`` argument followed by ``.repeat((10, 10, 1))``, measured in the same run.
+  ASE's ``layers`` counts its own (non-primitive) repeat units, so its slabs hold more atoms;
+  a second row per face compares against ASE with as many atoms as surfgeo's slab.
+  Goal: ratio <= 1.5.
+* A Pt(111) slab of about 10^5 atoms: time and peak memory (tracemalloc), and the time per
+  atom against a slab 10 times smaller (goal: linear in the atom count, a few seconds).
+
+Timings are the median of several repetitions after one warm-up call (both sides).
+"""
+
+from __future__ import annotations
+
+import statistics
+import sys
+import time
+import tracemalloc
+
+
+def _median_time(fn, repeat: int) -> float:
+    fn()  # warm-up (imports, caches) for both sides alike
+    times = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t0)
+    return statistics.median(times)
+
+
+def main(quick: bool = False) -> list[dict]:
+    from ase.build import bulk, surface
+
+    from surfgeo.slab.bulk import bulk_crystal
+    from surfgeo.slab.cut import surface_slab
+
+    repeat = 3 if quick else 9
+    pt = bulk_crystal("Pt")
+    pt_ase = bulk("Pt", "fcc", a=pt.info["surfgeo_bulk"]["a"], cubic=True)
+    rows: list[dict] = []
+    for hkl in [(5, 3, 3), (9, 9, 7), (1, 1, 0)]:
+        ours = surface_slab(pt, hkl, layers=20, size=(10, 10))
+        t_ours = _median_time(lambda h=hkl: surface_slab(pt, h, layers=20, size=(10, 10)), repeat)
+        ref = surface(pt_ase, hkl, 20, vacuum=5.0).repeat((10, 10, 1))
+        t_ase = _median_time(lambda h=hkl: surface(pt_ase, h, 20, vacuum=5.0).repeat((10, 10, 1)), repeat)
+        face = "".join(str(v) for v in hkl)
+        rows.append({
+            "benchmark": f"build Pt({face}) 20 layers 10x10 vs ase.build.surface(layers=20)",
+            "measured": f"{t_ours * 1e3:.2f} ms ({len(ours)} atoms)",
+            "baseline": f"{t_ase * 1e3:.2f} ms ({len(ref)} atoms)",
+            "ratio": t_ours / t_ase,
+            "goal": "<= 1.5",
+        })
+        # ASE with as many atoms as ours: its unit holds n_unit atoms per layer argument
+        n_unit = len(surface(pt_ase, hkl, 1, vacuum=5.0))
+        ase_layers = max(1, round(len(ours) / 100 / n_unit))
+        ref2 = surface(pt_ase, hkl, ase_layers, vacuum=5.0).repeat((10, 10, 1))
+        t_ase2 = _median_time(
+            lambda h=hkl, n=ase_layers: surface(pt_ase, h, n, vacuum=5.0).repeat((10, 10, 1)), repeat
+        )
+        rows.append({
+            "benchmark": f"build Pt({face}) 20 layers 10x10 vs ase.build.surface with the same atom count",
+            "measured": f"{t_ours * 1e3:.2f} ms ({len(ours)} atoms)",
+            "baseline": f"{t_ase2 * 1e3:.2f} ms ({len(ref2)} atoms, layers={ase_layers})",
+            "ratio": t_ours / t_ase2,
+            "goal": "<= 1.5",
+        })
+
+    # large slab: linear scaling and memory
+    side = 32 if quick else 100
+    small_side = max(1, round(side / 10 ** 0.5))
+    layers = 10
+    t_small = _median_time(
+        lambda: surface_slab(pt, (1, 1, 1), layers=layers, size=(small_side, small_side)), 3
+    )
+    n_small = layers * small_side * small_side
+    tracemalloc.start()
+    t0 = time.perf_counter()
+    big = surface_slab(pt, (1, 1, 1), layers=layers, size=(side, side))
+    t_big = time.perf_counter() - t0
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    t_big_clean = _median_time(lambda: surface_slab(pt, (1, 1, 1), layers=layers, size=(side, side)), 1)
+    rows.append({
+        "benchmark": f"build Pt(111) {len(big)} atoms ({side}x{side}, {layers} layers): time and peak memory",
+        "measured": f"{t_big_clean:.3f} s, peak {peak / 2**20:.1f} MiB (under tracemalloc {t_big:.3f} s)",
+        "baseline": "goal: a few seconds",
+        "ratio": t_big_clean / 3.0,
+        "goal": "<= 1 (3 s)",
+    })
+    per_big = t_big_clean / len(big)
+    per_small = t_small / n_small
+    rows.append({
+        "benchmark": f"build time per atom, {len(big)} atoms vs {n_small} atoms (linear scaling)",
+        "measured": f"{per_big * 1e9:.0f} ns/atom",
+        "baseline": f"{per_small * 1e9:.0f} ns/atom",
+        "ratio": per_big / per_small,
+        "goal": "<= 1.5 (linear or better)",
+    })
+    return rows
+
+
+if __name__ == "__main__":
+    quick = "--quick" in sys.argv
+    for row in main(quick=quick):
+        print(f"{row['benchmark']}\n    measured {row['measured']}; baseline {row['baseline']}; "
+              f"ratio {row['ratio']:.2f} (goal {row['goal']})")
