@@ -137,3 +137,24 @@ def test_bad_plot_name_leaves_nothing(tmp_path, capsys):
                      capsys)
     assert rc == 2 and ".png or .svg" in err and err.strip().count("\n") == 0
     assert list(tmp_path.iterdir()) == []
+
+
+def test_shared_superstructure_options_for_other_commands():
+    import argparse
+
+    from surfgeo.cli._common import add_superstructure_options, resolve_superstructure
+    from surfgeo.errors import NotationError
+    from surfgeo.lattice import parse_lattice
+
+    lat = parse_lattice("square:2.55")
+    parser = argparse.ArgumentParser()
+    add_superstructure_options(parser, wood_positional=False)
+    sup = resolve_superstructure(parser.parse_args(["--wood", "c(2x2)"]), lat)
+    assert sup.matrix.tolist() == [[1, 1], [-1, 1]]
+    sup = resolve_superstructure(parser.parse_args(["--matrix", "2", "0", "0", "-0.5"]), lat)
+    assert sup.kind == "coincidence" and sup.determinant == -1
+    assert resolve_superstructure(parser.parse_args([]), lat, required=False) is None
+    with pytest.raises(NotationError):
+        resolve_superstructure(parser.parse_args([]), lat)
+    with pytest.raises(NotationError):
+        resolve_superstructure(parser.parse_args(["--wood", "(2x1)", "--matrix", "1", "0", "0", "1"]), lat)

@@ -272,15 +272,11 @@ class Surd:
     def recognise(cls, square: float, rtol: float = 1e-11, max_den: int = 10**4) -> Surd | None:
         """The surd whose square is the float ``square``, if that square is a rational with a
         denominator of at most ``max_den`` within ``rtol``; else None."""
-        if not (math.isfinite(square) and square > 0):
-            return None
-        f = Fraction(square).limit_denominator(max_den)
-        if f <= 0 or abs(float(f) - square) > rtol * square:
-            return None
-        return cls.from_square(f)
+        return _recognise(cls, float(square), rtol, max_den)
 
     @property
     def square(self) -> Fraction:
+        """The exact square, a rational."""
         return self.coefficient**2 * self.radicand
 
     @property
@@ -321,3 +317,13 @@ class Surd:
 
     def __str__(self) -> str:
         return self.unicode
+
+
+@lru_cache(maxsize=8192)
+def _recognise(cls, square: float, rtol: float, max_den: int) -> Surd | None:
+    if not (math.isfinite(square) and square > 0):
+        return None
+    f = Fraction(square).limit_denominator(max_den)
+    if f <= 0 or abs(float(f) - square) > rtol * square:
+        return None
+    return cls.from_square(f)

@@ -427,7 +427,9 @@ def _search(lattice: Lattice2D, Mf: np.ndarray) -> list[tuple[bool, float, float
     xy = np.stack([xs.ravel(), ys.ravel()], axis=1)
     v1 = xy @ red
     n2 = np.einsum("ij,ij->i", v1, v1)
-    keep = (n2 <= rad_c * rad_c * (1 + 1e-9)) & (n2 > 0)
+    # v and -v give the same form (angles differ by 180 degrees): keep one half-plane
+    half = (xy[:, 0] > 0) | ((xy[:, 0] == 0) & (xy[:, 1] > 0))
+    keep = (n2 <= rad_c * rad_c * (1 + 1e-9)) & half
     k1, v1, n2 = xy[keep] @ T, v1[keep], n2[keep]
     a1, a2 = A
     phi = np.arctan2(a1[0] * v1[:, 1] - a1[1] * v1[:, 0], v1 @ a1)
