@@ -327,3 +327,39 @@ def test_sweep_intensities_match_single_energies():
                 assert sw.intensity[f, j] == pytest.approx(single.intensity[single.index_of(*hk)], rel=1e-9)
     on = onset_energy(sw.base.g[sw.index], 90.0, (8.0, 20.0))
     assert np.allclose(sw.onset, on)
+
+
+@pytest.mark.parametrize("miller", [(2, 1, 1), (5, 3, 3), (3, 3, 1)])
+def test_terrace_lattice_from_the_slab_record(miller):
+    from surfgeo.diffraction.pattern import terrace_lattice, terrace_normal
+    from surfgeo.slab.bulk import bulk_crystal
+    from surfgeo.slab.cut import surface_slab
+
+    slab = surface_slab(bulk_crystal("Cu"), miller, layers=24)
+    step = slab.info["surfgeo"]["step"]
+    t = terrace_lattice(slab)
+    n_t = terrace_normal(step)
+    a = slab.info["surfgeo"]["bulk"]["a"]
+    # Source: the (111) terrace of fcc is hexagonal with the nearest-neighbour distance a / sqrt2
+    # (ASE reference_states lattice constant); its normal is tilted by the miscut angle
+    assert np.linalg.norm(t, axis=1) == pytest.approx([a / math.sqrt(2)] * 2, rel=1e-6)
+    cos = t[0] @ t[1] / np.prod(np.linalg.norm(t, axis=1))
+    assert abs(cos) == pytest.approx(0.5, abs=1e-6)
+    assert np.allclose(t @ n_t, 0.0, atol=1e-6)
+    assert np.degrees(np.arccos(n_t[2])) == pytest.approx(step["miscut_deg"])
+    # Source: Henzler, Surf. Sci. 19, 159 (1970) (from memory): at the in-phase energies, with the
+    # incident beam along the terrace normal, the terrace specular is a beam (terrace index (0, 0))
+    # that holds the intensity between the neighbouring terrace rods
+    d = step["step_height"]
+    azimuth = math.degrees(math.atan2(-n_t[1], -n_t[0]))
+    for S in (4, 5):
+        energy = HBAR2_2M * (math.pi * S / d) ** 2
+        p = slab_pattern(slab, energy, (step["miscut_deg"], azimuth), inner_potential=0.0, temperature=None,
+                         domains=False)
+        th = p.terrace_hk
+        plane = np.abs(th[:, 1]) < 1e-6  # beams in the plane of incidence
+        j = np.flatnonzero(plane & (np.abs(th[:, 0]) < 1e-9))
+        assert len(j) == 1
+        near = plane & (np.abs(th[:, 0]) < 0.9)
+        assert p.intensity[j[0]] > 0.9 * p.intensity[near].sum()
+    assert "terrace_hk" in p.to_dict()["beams"][0]

@@ -357,6 +357,8 @@ def pattern_report(pattern, screen) -> str:
     if pattern.intensity is not None:
         head += f" {'intensity':>10}"
     head += f" {'x':>7} {'y':>7}"
+    if pattern.terrace_hk is not None:
+        head += f" {'terrace h_t,k_t':>16}"
     lines.append(head)
     for i, (h, k) in enumerate(pattern.hk):
         row = (
@@ -368,6 +370,8 @@ def pattern_report(pattern, screen) -> str:
         if pattern.intensity is not None:
             row += " " + ("extinct".rjust(10) if ext[i] else f"{pattern.intensity[i]:10.4g}")
         row += f" {_fmt(px[i, 0], 7, 1)} {_fmt(px[i, 1], 7, 1)}"
+        if pattern.terrace_hk is not None:
+            row += f" {pattern.terrace_hk[i, 0]:8.3f},{pattern.terrace_hk[i, 1]:7.3f}"
         if not vis[i]:
             row += "  (shadow)"
         lines.append(row)
@@ -391,6 +395,7 @@ def pattern_csv(pattern, screen) -> str:
                 pattern.phi[i],
                 pattern.k_parallel[i],
                 None if pattern.intensity is None else pattern.intensity[i],
+                None if pattern.terrace_hk is None else pattern.terrace_hk[i],
             )
             for i in range(len(pattern))
         ],
@@ -398,15 +403,17 @@ def pattern_csv(pattern, screen) -> str:
     )
 
 
-_CSV_HEAD = "energy_eV,h,k,order,source,domains,theta_deg,phi_deg,kx,ky,screen_x,screen_y,on_screen,intensity"
+_CSV_HEAD = (
+    "energy_eV,h,k,order,source,domains,theta_deg,phi_deg,kx,ky,screen_x,screen_y,on_screen,intensity,"
+    "terrace_h,terrace_k"
+)
 
 
 def _csv_rows(rows, px, vis) -> str:
     from surfgeo.diffraction.beams import format_index
 
     out = [_CSV_HEAD]
-    for j, (e, i, hk, order, src, doms, th, ph, kp, inten) in enumerate(rows):
-        del i
+    for j, (e, _, hk, order, src, doms, th, ph, kp, inten, terr) in enumerate(rows):
         vals = [
             f"{e:g}",
             format_index(hk[0]),
@@ -422,6 +429,8 @@ def _csv_rows(rows, px, vis) -> str:
             f"{px[j][1]:.4f}" if np.isfinite(px[j][1]) else "",
             "1" if vis[j] else "0",
             "" if inten is None or not np.isfinite(inten) else f"{inten:.6g}",
+            "" if terr is None else f"{terr[0]:.6f}",
+            "" if terr is None else f"{terr[1]:.6f}",
         ]
         out.append(",".join(vals))
     return "\n".join(out) + "\n"
@@ -481,6 +490,7 @@ def sweep_csv(sweep, screen) -> str:
                     sweep.phi[f, j],
                     sweep.k_parallel[f, j],
                     None if sweep.intensity is None else sweep.intensity[f, j],
+                    None if sweep.terrace_hk is None else sweep.terrace_hk[f, j],
                 )
             )
             pxs.append(px[f, j])

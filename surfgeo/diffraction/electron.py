@@ -161,12 +161,13 @@ def gun_frame_rotation(incidence=(0.0, 0.0)) -> np.ndarray:
 
 def to_gun_frame(directions, incidence=(0.0, 0.0)) -> np.ndarray:
     """Directions (..., 3) from the sample frame into the gun (screen) frame."""
-    return np.asarray(directions, dtype=float) @ gun_frame_rotation(incidence).T
+    # einsum rather than a BLAS matmul: many rows times a 3x3 matrix is faster this way
+    return np.einsum("...j,ij->...i", np.asarray(directions, dtype=float), gun_frame_rotation(incidence))
 
 
 def from_gun_frame(directions, incidence=(0.0, 0.0)) -> np.ndarray:
     """Directions (..., 3) from the gun (screen) frame back into the sample frame."""
-    return np.asarray(directions, dtype=float) @ gun_frame_rotation(incidence)
+    return np.einsum("...j,ji->...i", np.asarray(directions, dtype=float), gun_frame_rotation(incidence))
 
 
 def emergence_energy(g_parallel, incidence=(0.0, 0.0)) -> np.ndarray:

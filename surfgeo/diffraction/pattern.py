@@ -650,18 +650,74 @@ def slab_context(atoms, use_domains: bool = True, weights=None, symprec: float |
     return lattice, _exact_or_float(M), records, reps, notes
 
 
-def _slab_terrace(atoms) -> np.ndarray | None:
-    """Terrace lattice vectors (2, 3) of a stepped slab from its record, if it has them."""
-    rec = atoms.info.get("surfgeo", {}) if hasattr(atoms, "info") else {}
-    step = rec.get("step") if isinstance(rec, dict) else None
-    if not isinstance(step, dict):
+def terrace_normal(step: dict) -> np.ndarray:
+    """Unit normal (3,) of the terraces of a vicinal face in the slab frame.
+
+    From the step record of the slab (``miscut_deg`` and ``step_down``, the in-plane direction
+    down the staircase): the terrace normal is tilted from +z by the miscut angle, away from the
+    step-down direction.
+    """
+    theta = math.radians(float(step["miscut_deg"]))
+    down = np.asarray(step["step_down"], dtype=float)
+    down = down / np.linalg.norm(down)
+    return np.array([-math.sin(theta) * down[0], -math.sin(theta) * down[1], math.cos(theta)])
+
+
+def terrace_lattice(atoms, step: dict | None = None, tol: float = 0.1) -> np.ndarray | None:
+    """Lattice vectors (2, 3) of the terraces of a stepped slab, Angstrom, slab frame.
+
+    The terrace plane comes from the step record (:func:`terrace_normal`); its lattice is read
+    from the atoms: the in-plane differences (within ``tol`` Angstrom of the plane, periodic
+    images included) between an atom of the most common element deep in the slab and the
+    other atoms of that element. The two shortest independent ones form the basis; the one
+    along the step edge (when there is one) comes second and the first points down the steps.
+    Assumes the atoms of one terrace plane of that element form a single Bravais lattice (true
+    for the elemental fcc, bcc and hcp crystals). Returns None for a slab without a step record
+    or when no such lattice is found.
+    """
+    if step is None:
+        rec = atoms.info.get("surfgeo", {}) if hasattr(atoms, "info") else {}
+        step = rec.get("step") if isinstance(rec, dict) else None
+    if not isinstance(step, dict) or step.get("miscut_deg") is None or step.get("step_down") is None:
         return None
-    for key in ("terrace_vectors", "terrace_cell"):
-        if step.get(key) is not None:
-            t = np.asarray(step[key], dtype=float)
-            if t.shape == (2, 3):
-                return t
-    return None
+    from surfgeo.slab.info import surface_info
+
+    n_t = terrace_normal(step)
+    info = surface_info(atoms)
+    cell2d = info.cell2d
+    pos = atoms.get_positions()
+    num = atoms.get_atomic_numbers()
+    elements, counts = np.unique(num, return_counts=True)
+    species = elements[np.argmax(counts)]
+    sel = pos[num == species]
+    mid = 0.5 * (pos[:, 2].min() + pos[:, 2].max())
+    ref = sel[np.argmin(np.abs(sel[:, 2] - mid))]
+    shifts = np.array([(i, j) for i in range(-3, 4) for j in range(-3, 4)], dtype=float) @ cell2d
+    d = sel[None, :, :] - ref[None, None, :]
+    d = d + np.concatenate([shifts, np.zeros((len(shifts), 1))], axis=1)[:, None, :]
+    d = d.reshape(-1, 3)
+    length = np.linalg.norm(d, axis=1)
+    d = d[(np.abs(d @ n_t) < tol) & (length > 1e-3)]
+    if len(d) < 2:
+        return None
+    d = d[np.argsort(np.linalg.norm(d, axis=1), kind="stable")]
+    lengths = np.linalg.norm(d, axis=1)
+    edge = np.append(np.asarray(step.get("step_edge", [1.0, 0.0]), dtype=float), 0.0)
+    down3 = np.append(np.asarray(step["step_down"], dtype=float), 0.0)
+    along = np.linalg.norm(np.cross(d, edge), axis=1) <= 1e-3 * lengths * np.linalg.norm(edge)
+    shortest = lengths <= lengths[0] * (1 + 1e-6)
+    # second vector: a shortest one along the step edge if there is one, else the shortest
+    t2 = d[np.flatnonzero(shortest & along)[0]] if np.any(shortest & along) else d[0]
+    cross = np.linalg.norm(np.cross(d, t2), axis=1)
+    other = d[cross > 1e-3 * np.linalg.norm(t2) ** 2]
+    if len(other) == 0:
+        return None
+    t1 = other[0]
+    if t1 @ down3 < 0:
+        t1 = -t1
+    if t2 @ edge < 0:
+        t2 = -t2
+    return np.array([t1, t2])
 
 
 def domain_intensities(
@@ -724,7 +780,8 @@ def slab_pattern(
     symprec : float, optional
         Tolerance (Angstrom) of the structural symmetry checks.
     terrace : array_like (2, 3), optional
-        Terrace lattice vectors of a stepped face (default: from the slab's step record).
+        Terrace lattice vectors of a stepped face (default: :func:`terrace_lattice` from the
+        slab's step record and its atoms).
     intensities : bool
         Compute the kinematic intensities (default); False gives positions and domains only.
     **kinematic
@@ -764,7 +821,7 @@ def slab_pattern(
     )
     if intensities:
         _add_intensities(pat, atoms, reps, **kinematic)
-    t = np.asarray(terrace, dtype=float) if terrace is not None else _slab_terrace(atoms)
+    t = np.asarray(terrace, dtype=float) if terrace is not None else terrace_lattice(atoms)
     if t is not None:
         pat.terrace_hk = terrace_indices(pat.k_parallel, energy, pat.incidence_xy, t)
     return pat

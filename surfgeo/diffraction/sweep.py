@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from surfgeo.diffraction.beams import format_index
+from surfgeo.diffraction.beams import format_index, terrace_indices
 from surfgeo.diffraction.electron import exit_angles, incident_k_parallel, onset_energy
 from surfgeo.diffraction.pattern import (
     Pattern,
@@ -21,6 +21,7 @@ from surfgeo.diffraction.pattern import (
     slab_context,
     slab_pattern,
     superstructure_pattern,
+    terrace_lattice,
 )
 from surfgeo.errors import InputError
 
@@ -80,6 +81,8 @@ class PatternSweep:
         Weighted kinematic intensities (qualitative), NaN where the beam does not emerge.
     theta_max : float
         Acceptance half-angle used for the onsets, degrees.
+    terrace_hk : ndarray or None, shape (NE, Nb, 2)
+        Beam indices relative to the terrace lattice of a stepped slab (energy dependent).
     """
 
     energies: np.ndarray
@@ -91,6 +94,7 @@ class PatternSweep:
     onset: np.ndarray
     intensity: np.ndarray | None
     theta_max: float
+    terrace_hk: np.ndarray | None = None
 
     @property
     def hk(self) -> list:
@@ -134,6 +138,11 @@ class PatternSweep:
             }
             if base.via[i] is not None:
                 b["via"] = base.via[i]
+            if self.terrace_hk is not None:
+                b["terrace_hk"] = [
+                    [float(x), float(y)] if e else None
+                    for (x, y), e in zip(self.terrace_hk[:, j], em, strict=True)
+                ]
             if px is not None:
                 b["screen_xy"] = [
                     [float(x), float(y)] if e else None for (x, y), e in zip(px[:, j], em, strict=True)
@@ -246,7 +255,12 @@ def pattern_sweep(
             rows.append(part)
         intensity = np.concatenate(rows) if rows else intensity
         intensity[~np.isfinite(theta)] = np.nan
-    return PatternSweep(e, base, index, kp, theta, phi, onset_all[index], intensity, theta_max)
+    terrace = None
+    if atoms is not None:
+        t = terrace_lattice(atoms)
+        if t is not None:
+            terrace = np.stack([terrace_indices(kp[f], x, inc, t) for f, x in enumerate(e)])
+    return PatternSweep(e, base, index, kp, theta, phi, onset_all[index], intensity, theta_max, terrace)
 
 
 __all__ = ["PatternSweep", "parse_energies", "pattern_sweep"]

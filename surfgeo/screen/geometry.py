@@ -216,7 +216,7 @@ class ScreenGeometry:
             bad = ~(theta <= math.radians(self.max_theta_deg) * (1 + 1e-12))
         rho = self.radial(np.where(bad, 0.0, theta))
         w = rho[..., None] * np.stack([np.cos(psi), np.sin(psi)], axis=-1)
-        v = w @ self._linear().T
+        v = np.einsum("...j,ij->...i", w, self._linear())
         px = np.stack(
             [self.centre_x + self.scale * v[..., 0], self.centre_y - self.scale * v[..., 1]], axis=-1
         )
@@ -232,7 +232,7 @@ class ScreenGeometry:
         v = np.stack(
             [(p[..., 0] - self.centre_x) / self.scale, (self.centre_y - p[..., 1]) / self.scale], axis=-1
         )
-        w = v @ np.linalg.inv(self._linear()).T
+        w = np.einsum("...j,ij->...i", v, np.linalg.inv(self._linear()))
         rho = np.hypot(w[..., 0], w[..., 1])
         psi = np.arctan2(w[..., 1], w[..., 0])
         theta = self.inverse_radial(rho)
