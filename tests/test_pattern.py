@@ -363,3 +363,15 @@ def test_terrace_lattice_from_the_slab_record(miller):
         near = plane & (np.abs(th[:, 0]) < 0.9)
         assert p.intensity[j[0]] > 0.9 * p.intensity[near].sum()
     assert "terrace_hk" in p.to_dict()["beams"][0]
+
+
+def test_superstructure_object_and_wood_input():
+    from surfgeo.lattice import Superstructure
+
+    sup = Superstructure.from_wood(HEX, "(sqrt3 x sqrt3)R30")
+    p = superstructure_pattern(sup, energy=120.0)
+    q = superstructure_pattern(HEX, [[2, 1], [-1, 1]], 120.0)
+    assert _labels(p) == _labels(q)
+    # Common practice, no source: the (sqrt3 x sqrt3)R30 spots at (1/3, 1/3) in the 120 degree basis
+    # (the matrix [[2, 1], [-1, 1]] is from sources.md)
+    assert (F(1, 3), F(1, 3)) in _labels(p)

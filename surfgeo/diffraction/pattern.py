@@ -509,7 +509,8 @@ def superstructure_pattern(
     Parameters
     ----------
     lattice : Lattice2D
-        Substrate 1x1 surface lattice.
+        Substrate 1x1 surface lattice, or a :class:`surfgeo.lattice.Superstructure` (then
+        ``matrix`` is taken from it).
     matrix : array_like (2, 2) or None
         Superstructure matrix (``B = M A``); ``None`` for the bare substrate. Integer matrices
         are commensurate superstructures; non-integer ones are overlayers (coincidence when
@@ -539,8 +540,10 @@ def superstructure_pattern(
     >>> len(p.domain_records)
     2
     """
+    if hasattr(lattice, "lattice") and hasattr(lattice, "matrix") and matrix is None:
+        lattice, matrix = lattice.lattice, lattice.matrix  # a surfgeo.lattice.Superstructure
     if not isinstance(lattice, Lattice2D):
-        raise InputError("lattice must be a surfgeo Lattice2D.")
+        raise InputError("lattice must be a surfgeo Lattice2D (or a Superstructure).")
     energy = _check_energy(energy)
     theta_max = _check_theta_max(theta_max)
     try:

@@ -60,7 +60,8 @@ def maps_onto_itself(positions, numbers, rotation, cell2d, tol: float = SYMPREC)
     rot[:, :2] = pos[:, :2] @ R.T
 
     def frac(p):
-        return (p[:, :2] @ inv) % 1.0
+        f = (p[:, :2] @ inv) % 1.0
+        return np.where(f >= 1.0, 0.0, f)  # -1e-18 % 1.0 rounds to 1.0, outside the periodic box
 
     # search space: fractional x, y (periodic), z and the element (far apart), all in one tree
     zscale = 1.0 / max(float(np.min(np.linalg.norm(cell, axis=1))), 1e-9)

@@ -341,12 +341,19 @@ def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
         first = np.flatnonzero(ok)[0]
         integer = sweep.base.integer[sweep.index[j]]
         entering = sweep.onset[j] > e[0]
-        ax.plot(*p[first], marker="h" if integer else "o", ms=5 if entering else 3,
-                color=cmap(norm(e[first])), mec="#ffffff" if entering else "none", mew=0.5)
+        ax.plot(
+            *p[first],
+            marker="h" if integer else "o",
+            ms=5 if entering else 3,
+            color=cmap(norm(e[first])),
+            mec="#ffffff" if entering else "none",
+            mew=0.5,
+        )
         if j in labelled:
             text = _label(sweep.hk[j]) + (f"\n{sweep.onset[j]:.0f} eV" if entering else "")
-            ax.annotate(text, p[first], xytext=(3, 3), textcoords="offset points", fontsize=5.5,
-                        color="#e5e5e5")
+            ax.annotate(
+                text, p[first], xytext=(3, 3), textcoords="offset points", fontsize=5.5, color="#e5e5e5"
+            )
     fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, label="energy (eV)", shrink=0.8)
     ax.set_xlim(-0.5, screen.width - 0.5)
     ax.set_ylim(screen.height - 0.5, -0.5)
@@ -362,12 +369,19 @@ def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
     save_figure(fig, path, force)
 
 
-def animate_sweep(sweep, screen, path, force: bool = False, max_frames: int = 120, fps: int = 8) -> None:
-    """A GIF animation of the pattern on the screen through the energy range (matplotlib + Pillow)."""
+def animate_sweep(
+    sweep, screen, path, force: bool = False, max_frames: int = 120, fps: int = 8, show_progress=None
+) -> None:
+    """A GIF animation of the pattern on the screen through the energy range.
+
+    Frames are drawn with matplotlib and written with Pillow; at most ``max_frames`` energies
+    (evenly spaced) are shown. A progress bar is drawn on a terminal.
+    """
     import matplotlib.pyplot as plt
-    from matplotlib.animation import FuncAnimation, PillowWriter
+    from PIL import Image
 
     from surfgeo.io import atomic_output
+    from surfgeo.progress import progress
 
     px, vis = sweep.screen_positions(screen)
     e = sweep.energies
@@ -415,9 +429,16 @@ def animate_sweep(sweep, screen, path, force: bool = False, max_frames: int = 12
         title.set_text(f"{e[f]:.1f} eV \u2014 {ok.sum()} beams on the screen")
         return dots, title
 
-    anim = FuncAnimation(fig, update, frames=frames, blit=False)
+    images = []
     try:
-        with atomic_output(path, force) as tmp:
-            anim.save(str(tmp), writer=PillowWriter(fps=fps))
+        for f in progress(frames, desc="animation", enabled=show_progress):
+            update(f)
+            fig.canvas.draw()
+            rgba = np.asarray(fig.canvas.buffer_rgba())
+            images.append(Image.fromarray(rgba[..., :3].copy()).quantize(colors=128))
     finally:
         plt.close(fig)
+    with atomic_output(path, force) as tmp:
+        images[0].save(
+            tmp, format="GIF", save_all=True, append_images=images[1:], duration=int(1000 / fps), loop=0
+        )
