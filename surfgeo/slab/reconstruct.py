@@ -5,9 +5,11 @@ new slab and leaves the input unchanged. It appends an entry to the record's
 ``reconstructions`` list with its parameters and the plane group that spglib finds for the
 result (:func:`surfgeo.slab.symmetry.plane_group`), and a line to ``provenance``.
 
-Layers are counted from the vacuum: layer 1 is the outermost substrate layer (atoms grouped
-by height with :data:`surfgeo.slab.layers.LAYER_TOL`). Adsorbates and overlayer films are
-never moved or removed here.
+Layers are counted from the vacuum: layer 1 is the outermost substrate layer, as
+:func:`surfgeo.slab.layers.slab_layers` defines them (the layer tags of a slab built by
+surfgeo, else atoms grouped by height with :data:`surfgeo.slab.layers.LAYER_TOL`). Adsorbates
+and overlayer films are never moved or removed here; added rows become the new layer 1 (the
+layer tags are renumbered when the slab carries them).
 
 Rows
 ----
@@ -51,7 +53,7 @@ import numpy as np
 
 from surfgeo.errors import ComputationError, StructureError
 from surfgeo.slab.info import surface_info, update_surface_info
-from surfgeo.slab.layers import LAYER_TOL, group_layers
+from surfgeo.slab.layers import slab_layers
 from surfgeo.slab.supercell import (
     ADSORBATE_KEY,
     ORIGIN_KEY,
@@ -76,13 +78,17 @@ def substrate_mask(atoms) -> np.ndarray:
     return mask
 
 
-def layers_from_top(atoms, tol: float = LAYER_TOL) -> list[np.ndarray]:
-    """Substrate atom indices of each atomic layer, layer 1 (outermost) first."""
-    sub = np.nonzero(substrate_mask(atoms))[0]
-    if len(sub) == 0:
+def layers_from_top(atoms, tol: float | None = None) -> list[np.ndarray]:
+    """Substrate atom indices of each atomic layer, layer 1 (outermost) first.
+
+    Layers as :func:`surfgeo.slab.layers.slab_layers` finds them (tags of a surfgeo slab,
+    else grouping by height with ``tol``), without adsorbate and film atoms.
+    """
+    mask = substrate_mask(atoms)
+    if not np.any(mask):
         raise StructureError("the slab has no substrate atoms.")
-    groups = group_layers(atoms.positions[sub, 2], tol)
-    return [sub[g] for g in reversed(groups)]
+    out = [g[mask[g]] for g in reversed(slab_layers(atoms, tol))]
+    return [g for g in out if len(g)]
 
 
 def _layer(layers: list[np.ndarray], layer: int, field: str = "layer") -> np.ndarray:
@@ -363,7 +369,13 @@ def added_row(
     if element not in chemical_symbols[1:]:
         raise StructureError(f"added_row element must be a chemical symbol, got {element!r}.")
     n0 = len(new)
+    tagged = bool(surface_info(new).extra.get("layers_from_tags"))
     new.extend(Atoms(symbols=[element] * len(added), positions=added))
+    if tagged:  # the added row is the new layer 1
+        tags = new.get_tags()
+        tags[:n0][tags[:n0] > 0] += 1
+        tags[n0:] = 1
+        new.set_tags(tags)
     if ORIGIN_KEY in new.arrays:
         new.arrays[ORIGIN_KEY][n0:] = -1
     if SHIFT_KEY in new.arrays:

@@ -33,8 +33,10 @@ How the sites are found
    point group (``1``, ``m``, ``2``, ``2mm``, ``3``, ``3m``, ``4``, ``4mm``, ``6``,
    ``6mm``).
 
-Sites already taken by an adsorbate (an adsorbate or film atom above the site, laterally
-within 0.3 d) are left out; the atoms present still count for equivalence and symmetry.
+Classes, names and symmetry are those of the substrate alone (adsorbates and films are left
+out), so a site keeps its name when other adsorbates are added. Sites already taken (an
+adsorbate or film atom above the site, laterally within 0.2 d) are then left out of their
+class; a class whose sites are all taken disappears.
 
 References
 ----------
@@ -581,26 +583,23 @@ def find_sites(
     regions = np.array(regions)
     mixes = np.array(mixes)
 
-    # environment of every site: all atoms (adsorbates included) with images
-    per_all = PeriodicImages(pos_all, num_all, A, pad)
+    # sites taken by an adsorbate or film atom directly above; they are dropped after the
+    # classes are formed, so that names and symmetry are those of the bare substrate
+    free = np.ones(len(S), dtype=bool)
     if not include_occupied and not np.all(mask):
-        others = np.nonzero(~mask[per_all.index])[0]
-        if len(others):
-            ot = cKDTree(per_all.xyz[others][:, :2])
-            dd, jj = ot.query(S[:, :2])
-            above = per_all.xyz[others][jj, 2] > S[:, 2]
-            free = ~((dd < 0.3 * d) & above)
-            S, kinds, variants, bonds, nmem, regions, mixes = (
-                S[free], kinds[free], variants[free], bonds[free], nmem[free], regions[free], mixes[free]
-            )
-            sites_members = [m for m, f in zip(sites_members, free, strict=True) if f]
-    if len(S) == 0:
+        per_other = PeriodicImages(pos_all[~mask], num_all[~mask], A, pad)
+        ot = cKDTree(per_other.xyz[:, :2])
+        dd, jj = ot.query(S[:, :2])
+        above = per_other.xyz[jj, 2] > S[:, 2]
+        free = ~((dd < 0.2 * d) & above)
+    if not np.any(free):
         raise StructureError("every site of this slab is occupied by an adsorbate.")
+    per_all = sub  # substrate atoms with images: the environment for equivalence and symmetry
 
     # fingerprints: K nearest distances to each species
     rows = []
     K = 8
-    for z in np.unique(num_all):
+    for z in np.unique(num_all[sub_idx]):
         pts = per_all.xyz[per_all.numbers == z]
         k = min(K, len(pts))
         dd, _ = cKDTree(pts).query(S, k=k)
@@ -657,7 +656,9 @@ def find_sites(
             base = f"{c['region']}-{base}"
         used[base] = used.get(base, 0) + 1
         name = base if used[base] == 1 else f"{base}-{used[base]}"
-        sites = c["sites"]
+        sites = c["sites"][free[c["sites"]]]
+        if len(sites) == 0:
+            continue
         sym = _site_symmetry(S[sites[0]], per_all, per_all.numbers, env_r, max(tol, 1e-3))
         members = np.array([sub_idx[local_to_sub[sites_members[i]]] for i in sites], dtype=int)
         classes.append(SiteClass(
