@@ -176,13 +176,15 @@ def build_from_args(args):
             if args.rectangular or args.symmetric or args.termination:
                 raise InputError("--steps builds a cell along the step edge; it takes no --rectangular, "
                                  "--symmetric or --termination.")
-            atoms = stepped_slab(bulk, args.steps, layers=args.layers or 12, vacuum=args.vacuum,
-                                 size=tuple(args.size), orthogonal=args.orthogonal)
+            atoms = stepped_slab(
+                bulk, args.steps, layers=12 if args.layers is None else args.layers, vacuum=args.vacuum,
+                size=tuple(args.size), orthogonal=args.orthogonal,
+            )
         else:
             if len(args.miller) not in (3, 4):
                 raise InputError(f"--miller takes 3 indices (H K L) or 4 (H K I L), got {len(args.miller)}.")
             atoms = surface_slab(
-                bulk, args.miller, layers=args.layers or 4, vacuum=args.vacuum,
+                bulk, args.miller, layers=4 if args.layers is None else args.layers, vacuum=args.vacuum,
                 orthogonal=args.orthogonal, rectangular=args.rectangular, symmetric=args.symmetric,
                 termination=args.termination, size=tuple(args.size), charges=_charges(args.charges),
             )

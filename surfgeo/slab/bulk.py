@@ -95,7 +95,7 @@ _PROTOTYPES: dict[str, dict] = {
 STRUCTURES: tuple[str, ...] = tuple(_PROTOTYPES)
 
 _ALIASES = {
-    "simple-cubic": "sc", "simplecubic": "sc", "cubic": "sc",
+    "sc": "sc", "simple-cubic": "sc", "simplecubic": "sc",
     "fcc": "fcc", "bcc": "bcc", "hcp": "hcp", "diamond": "diamond",
     "zincblende": "zincblende", "zinc-blende": "zincblende", "sphalerite": "zincblende", "b3": "zincblende",
     "rocksalt": "rocksalt", "rock-salt": "rocksalt", "nacl": "rocksalt", "b1": "rocksalt",

@@ -20,7 +20,11 @@ surfgeo writes them as the sum ``c1(t)+c2(s)+c3(k)`` meaning G = c1 g_t + c2 g_s
 (the terrace being the microfacet closest to the surface) and reports the kink density
 geometrically. No published table of such sums was in hand to check this form against;
 the geometric description (terrace width, step height, miscut, kink spacing) does not
-depend on it.
+depend on it. Kinks are counted against the close-packed rows of the terrace (its shortest
+lattice vectors): a step edge along any other lattice direction is made of close-packed
+segments with one-row offsets, and ``kinks_per_edge_period`` counts those offsets per period
+of the edge. By this count the <100> steps of fcc(100) and bcc(110) vicinals such as fcc(410)
+= 4(100)×(110) carry one kink per edge period, even though their notation has two terms.
 
 The step geometry (:func:`step_description`) is computed from the lattice, independently
 of the notation: step height h = 1/|g_t|, miscut angle theta between G and g_t, terrace

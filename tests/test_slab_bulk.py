@@ -1,0 +1,145 @@
+"""Bulk crystals (surfgeo.slab.bulk) against ASE's bulk builder, its reference data and spglib."""
+
+from __future__ import annotations
+
+import math
+
+import ase.io
+import numpy as np
+import pytest
+from ase.build import bulk as ase_bulk
+from ase.data import atomic_numbers, reference_states
+
+from surfgeo.errors import FileFormatError, StructureError
+from surfgeo.slab.bulk import bulk_crystal, parse_formula, read_bulk, translation_lattice
+
+
+@pytest.mark.parametrize("symbol", ["Cu", "Pt", "Au", "Fe", "W", "Mo", "Ru", "Mg", "Si", "C", "Po"])
+def test_element_defaults_are_ase_reference_data(symbol):
+    # Source: ASE reference data, ase.data.reference_states (structure, a, c/a)
+    ref = reference_states[atomic_numbers[symbol]]
+    b = bulk_crystal(symbol)
+    rec = b.info["surfgeo_bulk"]
+    assert rec["structure"] == ref["symmetry"]
+    assert rec["a"] == ref["a"]
+    if ref["symmetry"] == "hcp":
+        assert rec["c"] == pytest.approx(ref["a"] * ref["c/a"])
+    assert rec["source"] == "ASE reference_states"
+
+
+# Source: ase.build.bulk (cubic=True / hexagonal cells) as an independent builder: same number
+# of atoms per conventional cell, volume and nearest-neighbour distance. Space group numbers:
+# Source: International Tables Vol. A (From memory: fcc 225, bcc 229, hcp 194, diamond 227,
+# zincblende 216, rocksalt 225, CsCl 221, fluorite 225, wurtzite 186), confirmed by spglib.
+PROTOS = [
+    ("Cu", "fcc", 3.61, None, dict(crystalstructure="fcc", a=3.61, cubic=True), 225),
+    ("Fe", "bcc", 2.87, None, dict(crystalstructure="bcc", a=2.87, cubic=True), 229),
+    ("Ru", "hcp", 2.70, 4.28, dict(crystalstructure="hcp", a=2.70, c=4.28), 194),
+    ("Si", "diamond", 5.43, None, dict(crystalstructure="diamond", a=5.43, cubic=True), 227),
+    ("GaAs", "zincblende", 5.65, None, dict(crystalstructure="zincblende", a=5.65, cubic=True), 216),
+    ("NaCl", "rocksalt", 5.64, None, dict(crystalstructure="rocksalt", a=5.64, cubic=True), 225),
+    ("CsCl", "cesiumchloride", 4.12, None, dict(crystalstructure="cesiumchloride", a=4.12), 221),
+    ("CaF2", "fluorite", 5.46, None, dict(crystalstructure="fluorite", a=5.46, cubic=True), 225),
+    ("ZnO", "wurtzite", 3.25, 5.21, dict(crystalstructure="wurtzite", a=3.25, c=5.21, u=0.375), 186),
+]
+
+
+def _nn(atoms):
+    from ase.neighborlist import neighbor_list
+
+    d = neighbor_list("d", atoms, 4.0)
+    return float(d.min())
+
+
+@pytest.mark.parametrize("formula,structure,a,c,ase_kw,sg", PROTOS, ids=[p[1] for p in PROTOS])
+def test_prototypes_against_ase(formula, structure, a, c, ase_kw, sg):
+    ours = bulk_crystal(formula, structure, a=a, c=c)
+    ref = ase_bulk(formula, **ase_kw)
+    assert ours.get_volume() / len(ours) == pytest.approx(ref.get_volume() / len(ref))
+    assert sorted(ours.get_chemical_symbols()) == sorted(ref.get_chemical_symbols() * (len(ours) // len(ref)))
+    assert _nn(ours) == pytest.approx(_nn(ref))
+    assert ours.info["surfgeo_bulk"]["spacegroup"] == sg
+
+
+def test_perovskite():
+    sto = bulk_crystal("SrTiO3", "perovskite", a=3.905)
+    # Source: International Tables Vol. A; From memory: cubic perovskite Pm-3m, no. 221
+    assert sto.info["surfgeo_bulk"]["spacegroup"] == 221
+    assert sorted(sto.get_chemical_symbols()) == ["O", "O", "O", "Sr", "Ti"]
+    # Common practice, no source: Ti-O distance a/2
+    d = sto.get_distances(1, [2, 3, 4], mic=True)
+    assert np.allclose(d, 3.905 / 2)
+
+
+def test_translation_lattice_is_primitive():
+    # Common practice, no source: fcc primitive volume a^3/4, bcc a^3/2, diamond a^3/4 (2 atoms)
+    for sym, frac in (("Cu", 0.25), ("Fe", 0.5), ("Si", 0.25), ("Ru", 1.0)):
+        b = bulk_crystal(sym)
+        P = translation_lattice(b)
+        assert abs(np.linalg.det(P)) == pytest.approx(b.get_volume() * frac)
+
+
+def test_read_bulk_standardises_to_the_conventional_cell(tmp_path):
+    prim = ase_bulk("Cu", "fcc", a=3.61)  # primitive rhombohedral cell
+    path = tmp_path / "cu.cif"
+    ase.io.write(path, prim)
+    b = bulk_crystal(str(path))
+    assert len(b) == 4
+    assert np.allclose(b.cell.lengths(), 3.61, atol=1e-6)
+    assert b.info["surfgeo_bulk"]["spacegroup"] == 225
+    poscar = tmp_path / "POSCAR"
+    ase.io.write(poscar, ase_bulk("Ru", "hcp", a=2.7, c=4.28), format="vasp")
+    r = read_bulk(poscar)
+    assert r.info["surfgeo_bulk"]["hexagonal"]
+    assert r.cell.angles()[2] == pytest.approx(120.0)
+
+
+def test_parse_formula():
+    assert parse_formula("CaF2") == [("Ca", 1), ("F", 2)]
+    with pytest.raises(StructureError, match="unknown chemical element 'Xx'"):
+        parse_formula("Xx")
+
+
+@pytest.mark.parametrize(
+    "args,kwargs,match",
+    [
+        (("Xx",), {}, "unknown chemical element"),
+        (("pt",), {}, "not a chemical symbol"),
+        (("NaCl",), {}, "is a compound"),
+        (("NaCl", "rocksalt"), {}, "give the lattice constant a"),
+        (("NaCl2", "rocksalt"), {"a": 5.0}, "stoichiometry"),
+        (("Ga",), {}, "orthorhombic"),
+        (("Cu", "diamond"), {}, "no reference lattice constant"),
+        (("Cu", "fcc"), {"a": -1}, "positive"),
+        (("Cu", "fcc"), {"a": 3.6, "c": 5.0}, "only a"),
+        (("Cu", "kagome"), {}, "unknown structure"),
+        (("Ru", "hcp"), {"a": 2.7}, None),
+    ],
+)
+def test_bad_crystals(args, kwargs, match):
+    if match is None:  # c/a from the reference data when only a is given
+        b = bulk_crystal(*args, **kwargs)
+        assert b.info["surfgeo_bulk"]["c"] == pytest.approx(2.7 * 1.584)
+        return
+    with pytest.raises(StructureError, match=match):
+        bulk_crystal(*args, **kwargs)
+
+
+def test_bad_files(tmp_path):
+    with pytest.raises(FileFormatError, match="does not exist"):
+        bulk_crystal(str(tmp_path / "missing.cif"))
+    bad = tmp_path / "broken.cif"
+    bad.write_text("this is not a crystal\n")
+    with pytest.raises(FileFormatError, match="cannot read"):
+        bulk_crystal(str(bad))
+    mol = tmp_path / "mol.xyz"
+    mol.write_text("2\n\nH 0 0 0\nH 0 0 0.74\n")
+    with pytest.raises(StructureError, match="periodic 3D crystal"):
+        bulk_crystal(str(mol))
+
+
+def test_hexagonal_cell_angle():
+    # Common practice, no source: hexagonal conventional cells at 120 degrees (design.md)
+    b = bulk_crystal("Mg")
+    assert b.cell.angles()[2] == pytest.approx(120.0)
+    assert math.isclose(b.cell.lengths()[0], b.cell.lengths()[1])

@@ -1,0 +1,54 @@
+"""The slab summary (surfgeo.slab.summary)."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from ase.build import fcc110
+
+from surfgeo.io import to_jsonable
+from surfgeo.slab.cut import surface_slab
+from surfgeo.slab.relax import relax_layers
+from surfgeo.slab.steps import stepped_slab
+from surfgeo.slab.summary import format_summary, slab_summary
+
+REQUIRED = ("surface_lattice", "layer_spacing", "atoms_per_layer", "layers", "step_notation",
+            "terrace_width", "step_height", "miscut_deg")
+
+
+def test_flat_face_summary():
+    s = surface_slab("Pt", (1, 1, 1), layers=5, size=(2, 2))
+    sm = slab_summary(s)
+    for k in REQUIRED:
+        assert k in sm
+    json.dumps(to_jsonable(sm))
+    assert set(sm["surface_lattice"]) >= {"kind", "a1", "a2", "area"}
+    assert sm["surface_lattice"]["kind"] == "hexagonal"
+    assert sm["atoms_per_layer"] == [4] * 5
+    assert len(sm["layers"]) == 5 and sm["layers"] == sorted(sm["layers"])
+    assert sm["step_notation"] is None and sm["terrace_width"] is None and sm["miscut_deg"] == 0.0
+    # Common practice, no source: fcc(111) spacing a/sqrt(3)
+    assert sm["layer_spacing"] == pytest.approx(3.92 / 3**0.5)
+    assert sm["symmetry"]["plane_group"] == "p3m1"
+    assert sm["registry"][-1] == [0.0, 0.0]
+    text = format_summary(sm)
+    assert "hexagonal" in text and "5 layers" in text
+
+
+def test_stepped_and_relaxed_summary():
+    s = relax_layers(stepped_slab("Pt", "9(111)x(111)", layers=20), "d12=-1%")
+    sm = slab_summary(s)
+    assert sm["step_notation"] == "9(111)×(111)"
+    assert sm["step_height"] == pytest.approx(3.92 / 3**0.5)
+    assert sm["miscut_deg"] == pytest.approx(6.45, abs=0.01)
+    assert sm["relaxations"][0]["changes"]["d12"]["value"] == -1.0
+    text = format_summary(sm)
+    assert "9(111)×(111)" in text and "relaxed (top)" in text
+
+
+def test_summary_of_a_foreign_slab():
+    sm = slab_summary(fcc110("Cu", (2, 3, 4), vacuum=5.0))
+    assert sm["n_layers"] == 4 and sm["atoms_per_layer"] == [6] * 4
+    assert sm["miller"] is None
+    assert sm["vacuum_gap"] == pytest.approx(10.0)
