@@ -223,3 +223,33 @@ def test_cli_bad_model_exits_2_without_output(tmp_path, capsys):
     assert len(err.strip().splitlines()) == 1
     assert not out.exists()
     assert list(tmp_path.iterdir()) == [p]
+
+
+# ---------------------------------------------------------------------------- documentation
+DOC = Path(__file__).resolve().parent.parent / "docs" / "model-file.md"
+
+
+def test_every_field_is_documented_and_the_example_builds(tmp_path):
+    from surfgeo.slab import model as m
+
+    doc = DOC.read_text(encoding="utf-8")
+    tables = [m.MODEL_FIELDS, m.PROVENANCE_FIELDS, m.SUBSTRATE_FIELDS, m.CELL_FIELDS, m.CHECKS_FIELDS,
+              m.ADSORBATE_FIELDS, m.OVERLAYER_FIELDS] + [f for f, _, _ in m.RECON_FIELDS.values()]
+    for fields in tables:
+        for name in fields:
+            assert f"| `{name}` |" in doc or f"| `{name}`, " in doc or f", `{name}` |" in doc, name
+    for kind in m.RECONSTRUCTION_KINDS:
+        assert f'`kind = "{kind}"`' in doc
+    example = doc.split("```toml\n")[-1].split("```")[0]
+    s = build_model(_write(tmp_path, example, "example.toml"))
+    assert s.info["surfgeo"]["reconstructions"][0]["plane_group"] == "p4g"
+
+
+def test_documented_error_example(tmp_path):
+    p = _write(tmp_path, GOOD.replace('site = "fourfold-hollow"', 'site = "fourfold-hollow"\nheigth = 1'))
+    with pytest.raises(FileFormatError) as info:
+        build_model(p)
+    doc = DOC.read_text(encoding="utf-8")
+    shown = ("adsorbate[0].heigth is not a known field of [adsorbate[0]]; valid fields are species, "
+             "file, site,")
+    assert shown in str(info.value) and shown in doc
