@@ -253,3 +253,13 @@ def test_documented_error_example(tmp_path):
     shown = ("adsorbate[0].heigth is not a known field of [adsorbate[0]]; valid fields are species, "
              "file, site,")
     assert shown in str(info.value) and shown in doc
+
+
+def test_cli_model_refuses_face_options(tmp_path, capsys):
+    from surfgeo.cli.main import main
+
+    p = _write(tmp_path, GOOD)
+    out = tmp_path / "slab.extxyz"
+    assert main(["build", str(p), "--miller", "1", "1", "1", "-o", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "--miller cannot be combined with a MODEL file" in err and not out.exists()

@@ -32,6 +32,10 @@ examples:
 
   surfgeo build --crystal SrTiO3 --structure perovskite --a 3.905 --miller 1 1 0 --symmetric -o sto.cif
       SrTiO3(110) (polar, Tasker type 3) with the same termination at top and bottom
+
+  surfgeo build structures/ni100_c_p4g.toml -o ni100_p4g.extxyz
+      a surface model file (substrate, cell, reconstructions, adsorbates, films; see
+      docs/model-file.md): here the synthetic p4g clock reconstruction with C in the hollows
 """
 
 
@@ -156,6 +160,18 @@ def build_from_args(args):
 
     if args.model and args.crystal:
         raise InputError("give either a MODEL file or --crystal, not both.")
+    if args.model:
+        clash = [opt for opt, val in (
+            ("--miller", args.miller), ("--steps", args.steps), ("--structure", args.structure),
+            ("--a", args.a), ("--c", args.c), ("--species", args.species), ("--charges", args.charges),
+            ("--layers", args.layers), ("--termination", args.termination),
+            ("--rectangular", args.rectangular), ("--orthogonal", args.orthogonal),
+            ("--symmetric", args.symmetric), ("--size", tuple(args.size) != (1, 1)),
+        ) if val]
+        if clash:
+            raise InputError(
+                f"{', '.join(clash)} cannot be combined with a MODEL file; state them in the model."
+            )
     if args.model:
         try:
             from surfgeo.slab.model import build_model
