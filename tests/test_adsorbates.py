@@ -9,6 +9,8 @@ import numpy as np
 import pytest
 from ase.build import add_adsorbate as ase_add_adsorbate
 from ase.build import fcc100, fcc110, fcc111, molecule
+from hypothesis import assume, given, settings
+from hypothesis import strategies as st
 
 from surfgeo.errors import StructureError
 from surfgeo.slab.adsorbates import add_adsorbate, close_contacts, coverage, make_adsorbate, oriented
@@ -203,3 +205,21 @@ def test_film_validation():
         Film([[2, 0], [0, 2]], (("Qq", 0, 0),))
     with pytest.raises(StructureError, match="right-handed"):
         Film([[0, 2], [2, 0]], (("O", 0, 0),))
+
+
+@settings(max_examples=10, deadline=None)
+@given(st.integers(-2, 2), st.integers(-2, 2), st.integers(1, 3), st.integers(1, 3))
+def test_supercell_origin_map_property(m12, m21, m11, m22):
+    """Property: every atom of any supercell is its 1x1 origin plus a 1x1 lattice vector."""
+    M = np.array([[m11, m12], [m21, m22]])
+    assume(round(np.linalg.det(M)) > 0)
+    slab = fcc100("Cu", (1, 1, 3), vacuum=6.0)
+    big = make_supercell(slab, M)
+    origin, shift = origin_map(big)
+    assert len(big) == round(np.linalg.det(M)) * len(slab)
+    expect = slab.positions[origin, :2] + shift @ slab.cell[:2, :2]
+    assert np.allclose(big.positions[:, :2], expect, atol=1e-9)
+    f = big.positions[:, :2] @ np.linalg.inv(big.cell[:2, :2])
+    assert np.all((f > -1e-9) & (f < 1 - 1e-9))
+    # no two atoms coincide (each lattice point of the cell taken once)
+    assert close_contacts(big) == []

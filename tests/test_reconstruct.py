@@ -197,3 +197,39 @@ def test_transformations_leave_the_input_alone():
     clock_rotation(slab, angle=5)
     missing_row(fcc110("Ni", (1, 1, 4), vacuum=8.0))
     assert np.array_equal(slab.positions, before) and slab.info == info
+
+
+def test_threefold_clock_rotation_of_trimers():
+    from surfgeo.slab.cut import surface_slab
+
+    s = make_supercell(surface_slab("Cu", (1, 1, 1), layers=4), "(sqrt3 x sqrt3)R30")
+    centre = find_sites(s).get("hcp-hollow").fractional[0]
+    r = clock_rotation(s, angle=8.0, centres=[(*centre, 1)])
+    # Source: spglib; turning the trimers round one hollow per (sqrt3 x sqrt3) cell keeps the
+    # threefold axes and removes the mirrors: p3
+    assert _last(r)["plane_group"] == "p3"
+    top = layers_from_top(s)[0]
+    c = np.array(centre) @ s.cell[:2, :2]
+    v0 = s.positions[top, :2] - c
+    f = v0 @ np.linalg.inv(s.cell[:2, :2])
+    v0 = (f - np.rint(f)) @ s.cell[:2, :2]
+    v1 = v0 + (r.positions[top, :2] - s.positions[top, :2])
+    cross = v0[:, 0] * v1[:, 1] - v0[:, 1] * v1[:, 0]
+    turn = np.degrees(np.arctan2(cross, np.sum(v0 * v1, axis=1)))
+    # Common practice, no source: every atom of the trimer turns by the same angle about the centre
+    assert turn == pytest.approx(np.full(3, 8.0))
+
+
+def test_reconstructions_on_surfgeo_built_slabs_keep_layer_tags():
+    from surfgeo.slab.cut import surface_slab
+
+    slab = surface_slab("Cu", (1, 1, 0), layers=5)
+    s = added_row(slab)
+    tags = s.get_tags()
+    new = len(s) - 1
+    # the added row is layer 1, the old layers move one number down; layer 1 is the added row
+    assert tags[new] == 1 and sorted(set(tags[:new])) == [2, 3, 4, 5, 6]
+    assert list(layers_from_top(s)[0]) == [new]
+    m = missing_row(surface_slab("Au", (1, 1, 0), layers=6))
+    assert _last(m)["matrix"] == [[1, 0], [0, 2]]  # surfgeo's fcc(110): a1 along the close-packed rows
+    assert _last(m)["plane_group"] == "p2mm"

@@ -213,3 +213,20 @@ def test_site_to_dict_and_table():
     assert "fcc-hollow" in sites.table()
     # Source: ASE reference state, Cu fcc a = 3.61 A; nearest neighbours a / sqrt(2)
     assert sites.nn_distance == pytest.approx(3.61 / math.sqrt(2), rel=1e-9)
+
+
+def test_sites_of_a_surfgeo_stepped_slab():
+    from surfgeo.slab.steps import stepped_slab
+
+    s = stepped_slab("Pt", "4(111)x(100)", layers=12)
+    sites = find_sites(s)
+    # Source: step notation (Lang, Joyner and Somorjai 1972): a 4-row terrace, one step-edge row,
+    # one step-bottom row, two terrace rows per cell
+    assert [len(sites.atom_regions[k]) for k in ("step-edge", "terrace", "step-bottom")] == [1, 2, 1]
+    # a (100) step: the riser holds a fourfold hollow
+    assert sites.get("step-fourfold-hollow").multiplicity == 1
+    s2 = stepped_slab("Pt", "4(111)x(111)", layers=12)
+    names = find_sites(s2).names
+    # a (111) step: the riser holds threefold hollows instead
+    assert "step-fourfold-hollow" not in names
+    assert {"step-fcc-hollow", "step-hcp-hollow"} <= set(names)
