@@ -335,9 +335,11 @@ def add_adsorbate(
     Examples
     --------
     >>> from ase.build import fcc111
-    >>> s = add_adsorbate(fcc111("Pt", (2, 2, 3), vacuum=6.0), "O", "fcc-hollow", bond_length=2.05)
+    >>> from surfgeo.slab.supercell import make_supercell
+    >>> slab = make_supercell(fcc111("Pt", (1, 1, 3), vacuum=6.0), "p(2x2)")
+    >>> s = add_adsorbate(slab, "O", "fcc-hollow", bond_length=2.05)
     >>> s[-1].symbol, coverage(s)
-    ('O', {'O': Fraction(1, 1)})
+    ('O', {'O': Fraction(1, 4)})
     """
     mol, label = make_adsorbate(species)
     if (height is None) == (bond_length is None):

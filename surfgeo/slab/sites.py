@@ -621,9 +621,9 @@ def find_sites(
         members = members[order]
         i0 = members[0]
         classes_raw.append({
-            "kind": kinds[i0],
-            "variant": variants[i0],
-            "region": regions[i0],
+            "kind": str(kinds[i0]),
+            "variant": str(variants[i0]),
+            "region": str(regions[i0]),
             "mix": int(mixes[i0]),
             "sites": members,
             "bond": float(bonds[members].mean()),
