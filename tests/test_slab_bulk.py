@@ -143,3 +143,15 @@ def test_hexagonal_cell_angle():
     b = bulk_crystal("Mg")
     assert b.cell.angles()[2] == pytest.approx(120.0)
     assert math.isclose(b.cell.lengths()[0], b.cell.lengths()[1])
+
+
+@pytest.mark.parametrize("formula,structure,a,c,ase_kw,sg", PROTOS, ids=[p[1] for p in PROTOS])
+def test_translation_lattice_agrees_with_spglib(formula, structure, a, c, ase_kw, sg):
+    # Source: spglib (get_symmetry): the pure translations of the conventional cell give the
+    # primitive volume V_conv / (1 + number of centring translations)
+    from surfgeo.slab.bulk import spglib_call
+
+    b = bulk_crystal(formula, structure, a=a, c=c)
+    sym = spglib_call("get_symmetry", (b.cell[:], b.get_scaled_positions(), b.numbers), symprec=1e-3)
+    n_pure = sum(1 for W in sym["rotations"] if np.array_equal(W, np.eye(3, dtype=int)))
+    assert abs(np.linalg.det(translation_lattice(b))) == pytest.approx(b.get_volume() / n_pure)

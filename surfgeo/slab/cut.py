@@ -251,30 +251,47 @@ def _shortest_vectors_2d(A: np.ndarray, nmax: int = 2) -> np.ndarray:
     return ij @ A
 
 
+def _gauss_reduce(u, v) -> np.ndarray:
+    """Gauss-Lagrange reduction of a 2D basis (plain floats; the basis is any, not oriented)."""
+    ux, uy = float(u[0]), float(u[1])
+    vx, vy = float(v[0]), float(v[1])
+    for _ in range(200):
+        if ux * ux + uy * uy > vx * vx + vy * vy:
+            ux, uy, vx, vy = vx, vy, ux, uy
+        mu = round((ux * vx + uy * vy) / (ux * ux + uy * uy))
+        if mu == 0:
+            break
+        vx, vy = vx - mu * ux, vy - mu * uy
+    return np.array([[ux, uy], [vx, vy]])
+
+
 def _choose_basis(k1: np.ndarray, k2: np.ndarray, n: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Reduced, right-handed (about n) basis of the plane lattice spanned by k1, k2 (3D vectors)."""
     e1 = k1 / np.linalg.norm(k1)
-    e2 = np.cross(n, e1)
+    e2 = np.array([n[1] * e1[2] - n[2] * e1[1], n[2] * e1[0] - n[0] * e1[2], n[0] * e1[1] - n[1] * e1[0]])
     E = np.array([e1, e2])  # 2D coordinates: v2 = E @ v
-    red, _ = Lattice2D(np.array([E @ k1, E @ k2])).reduced()
-    cands2 = _shortest_vectors_2d(red.vectors)
+    red = _gauss_reduce(E @ k1, E @ k2)
+    cands2 = _shortest_vectors_2d(red)
     cands3 = cands2 @ E
     lens = np.linalg.norm(cands2, axis=1)
     lmin = lens.min()
     short = cands3[lens <= lmin * (1 + 1e-6)]
-    area = abs(float(np.linalg.det(red.vectors)))
-    best = None
+    area = abs(float(red[0, 0] * red[1, 1] - red[0, 1] * red[1, 0]))
     short2 = short @ E.T
-    for v, v2 in zip(short, short2, strict=True):
-        cross = v2[0] * cands2[:, 1] - v2[1] * cands2[:, 0]
-        idx = np.nonzero(np.abs(cross - area) <= 1e-6 * area)[0]
-        dots = cands2[idx] @ v2
-        keys = np.round(lens[idx], 6) * 1e6 + np.round(dots, 6) / (1.0 + 4.0 * lmin * lmin)
-        j = int(idx[np.argmin(keys)])
-        acute = float(cands2[j] @ v2) > 1e-9 * lmin * lmin
-        key = (round(float(lens[j]), 6), acute, tuple(-np.round(v / np.linalg.norm(v), 6)))
-        if best is None or key < best[0]:
-            best = (key, v, cands3[j])
+    cross = short2[:, 0, None] * cands2[None, :, 1] - short2[:, 1, None] * cands2[None, :, 0]
+    dots = short2 @ cands2.T
+    ok = np.abs(cross - area) <= 1e-6 * area
+    # partner of each candidate a1: shortest, then most obtuse
+    rank = np.round(lens, 6)[None, :] * 1e6 + np.round(dots, 6) / (1.0 + 4.0 * lmin * lmin)
+    score = np.where(ok, rank, np.inf)
+    j = np.argmin(score, axis=1)
+    rows = np.arange(len(short))
+    acute = dots[rows, j] > 1e-9 * lmin * lmin
+    unit = np.round(short / np.linalg.norm(short, axis=1)[:, None], 6)
+    # prefer the shortest partner, then an obtuse angle, then the largest direction (x, y, z)
+    order = np.lexsort((-unit[:, 2], -unit[:, 1], -unit[:, 0], acute, np.round(lens[j], 6)))
+    k = int(order[0])
+    best = (None, short[k], cands3[j[k]])
     a1, a2 = best[1], best[2]
     return a1, a2
 
@@ -290,16 +307,25 @@ def _reduce_inplane(vec2: np.ndarray, A: np.ndarray) -> np.ndarray:
     return cands[int(np.argmin(ln + 1e-12 * np.arange(len(ln))))]
 
 
+_PI_CACHE: dict[bytes, np.ndarray] = {}
+
+
 def _primitive_miller(bulk: Atoms, hkl) -> tuple[np.ndarray, list[int]]:
     """Primitive basis P (rows) and coprime integer Miller indices of hkl in that basis."""
     C = np.asarray(bulk.cell[:], dtype=float)
     P = translation_lattice(bulk)
     P_frac = P @ np.linalg.inv(C)
     # P_frac has small denominators: scale to integers once, then integer arithmetic
-    D = math.lcm(*[_rational(x).denominator for x in P_frac.ravel()])
-    Pi = np.rint(P_frac * D).astype(np.int64)
-    if np.any(np.abs(Pi - P_frac * D) > 1e-6):  # pragma: no cover - spglib translations are rational
-        raise StructureError("internal error: the primitive cell is not a rational multiple of the cell.")
+    key = P_frac.tobytes()
+    if key not in _PI_CACHE:
+        D = math.lcm(*[_rational(x).denominator for x in P_frac.ravel()])
+        Pi = np.rint(P_frac * D).astype(np.int64)
+        if np.any(np.abs(Pi - P_frac * D) > 1e-6):  # pragma: no cover - spglib translations are rational
+            raise StructureError("internal error: the primitive cell is not a rational multiple of the cell.")
+        if len(_PI_CACHE) > 64:
+            _PI_CACHE.clear()
+        _PI_CACHE[key] = Pi
+    Pi = _PI_CACHE[key]
     mi = [int(v) for v in Pi @ np.array(hkl, dtype=np.int64)]
     g = math.gcd(*mi)
     return P, [v // g for v in mi]
@@ -310,12 +336,36 @@ def plane_lattice(bulk, hkl) -> np.ndarray:
     (hkl) planes of ``bulk`` (conventional three-index Miller indices)."""
     bulk = _as_bulk(bulk)
     C = np.asarray(bulk.cell[:], dtype=float)
-    G = np.array(hkl, dtype=float) @ np.linalg.inv(C).T
-    n = G / np.linalg.norm(G)
     P, mi = _primitive_miller(bulk, hkl)
-    k1, k2, _ = _unimodular_completion(mi)
-    a1, a2 = _choose_basis(k1 @ P, k2 @ P, n)
-    return np.array([a1, a2])
+    key = (C.tobytes(), P.tobytes(), tuple(int(v) for v in hkl))
+    if key not in _PLANE_CACHE:
+        G = np.array(hkl, dtype=float) @ np.linalg.inv(C).T
+        n = G / np.linalg.norm(G)
+        k1, k2, _ = _unimodular_completion(mi)
+        a1, a2 = _choose_basis(k1 @ P, k2 @ P, n)
+        if len(_PLANE_CACHE) > 256:
+            _PLANE_CACHE.clear()
+        _PLANE_CACHE[key] = np.array([a1, a2])
+    return _PLANE_CACHE[key].copy()
+
+
+_PLANE_CACHE: dict[tuple, np.ndarray] = {}
+
+
+def clear_caches() -> None:
+    """Forget cached translation lattices, plane lattices and step decompositions.
+
+    These pure results are kept between calls so that building several slabs of the same
+    face (other thicknesses, sizes, terminations) does not redo them; only benchmarks of a
+    first build need to clear them.
+    """
+    from surfgeo.slab import bulk as _bulk
+    from surfgeo.slab import steps as _steps
+
+    _bulk._TL_CACHE.clear()
+    _PI_CACHE.clear()
+    _PLANE_CACHE.clear()
+    _steps._decompose.cache_clear()
 
 
 def face_geometry(bulk, miller, layer_tol: float = LAYER_TOL) -> Face:

@@ -35,6 +35,7 @@ verbatim in :attr:`SurfaceInfo.extra` and written back unchanged.
 from __future__ import annotations
 
 import copy
+import json
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -51,6 +52,26 @@ _KNOWN = (
     "surface_cell", "supercell_matrix", "miller", "bulk", "layer_spacing", "relaxations",
     "provenance", "step", "termination",
 )
+
+
+def _np_default(obj: Any) -> Any:
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, np.floating):
+        return float(obj)
+    raise TypeError
+
+
+def _plain_fast(obj: Any) -> Any:
+    """Same as :func:`_plain` through the C JSON codec; falls back for non-finite numbers."""
+    try:
+        return json.loads(json.dumps(obj, default=_np_default, allow_nan=False))
+    except (TypeError, ValueError):
+        return _plain(obj)
 
 
 def _plain(obj: Any) -> Any:
@@ -161,7 +182,7 @@ class SurfaceInfo:
         for k, v in self.extra.items():
             if k not in out:
                 out[k] = v
-        return _plain(out)
+        return _plain_fast(out)
 
     @classmethod
     def from_dict(cls, record: dict) -> SurfaceInfo:

@@ -176,7 +176,7 @@ class StepDecomposition:
     def _fam(self, member) -> str:
         return _family_label(self.structure, member)
 
-    @property
+    @functools.cached_property
     def notation(self) -> str | None:
         """``"4(111)×(100)"`` for a stepped face, ``"15(111)+2(100)+(11-1)"`` for a kinked one.
 
@@ -257,6 +257,11 @@ def decompose(miller, structure: str, c_over_a: float | None = None) -> StepDeco
     """
     structure = _structure_key(structure)
     hkl = _to_three(miller, structure)
+    return _decompose(hkl, structure, None if c_over_a is None else round(float(c_over_a), 9))
+
+
+@functools.lru_cache(maxsize=512)
+def _decompose(hkl: tuple[int, int, int], structure: str, c_over_a: float | None) -> StepDecomposition:
     G = _shortest_g(hkl, structure)
     Gm = _metric(structure, c_over_a)
     members = _all_members(structure)
@@ -529,7 +534,7 @@ def step_description(face, bulk=None) -> dict | None:
     cos_t = float(gt @ n) / float(np.linalg.norm(gt))
     theta = math.acos(max(-1.0, min(1.0, cos_t)))
     R = face.rotation
-    edge3 = np.cross(gt, n)
+    edge3 = _cross3(gt, n)
     edge2 = (R @ edge3)[:2]
     A = face.cell2d
     s_edge = _shortest_along(A, edge2 / np.linalg.norm(edge2))
@@ -566,7 +571,7 @@ def step_description(face, bulk=None) -> dict | None:
         q = 0
     else:
         t1 = max(rows_dirs, key=lambda v: float(v @ edge_bulk) / lmin)
-        others = [v for v in t_short if np.linalg.norm(np.cross(v, t1)) > 1e-6 * lmin ** 2]
+        others = [v for v in t_short if np.linalg.norm(_cross3(v, t1)) > 1e-6 * lmin ** 2]
         t2 = min(others, key=lambda v: float(np.linalg.norm(v)))
         coef = np.linalg.lstsq(np.array([t1, t2]).T, edge_bulk, rcond=None)[0]
         q = abs(int(round(float(coef[1]))))
@@ -590,6 +595,10 @@ def step_description(face, bulk=None) -> dict | None:
         "kink_spacing": (edge_len / q) if q else None,
         "kink_density": q / edge_len,
     }
+
+
+def _cross3(u, v) -> np.ndarray:
+    return np.array([u[1] * v[2] - u[2] * v[1], u[2] * v[0] - u[0] * v[2], u[0] * v[1] - u[1] * v[0]])
 
 
 def _member_miller(g, structure: str) -> tuple[int, ...]:
