@@ -153,3 +153,24 @@ def test_help_has_a_worked_example(capsys):
         main(["build", "--help"])
     out = capsys.readouterr().out
     assert "examples:" in out and "surfgeo build --crystal Pt" in out
+
+
+def test_model_file_or_crystal_not_both(tmp_path, capsys):
+    code, _, err = _run(capsys, "build", str(tmp_path / "m.toml"), "--crystal", "Cu",
+                        "--miller", "1", "1", "1", "-o", str(tmp_path / "s.extxyz"))
+    assert code == 2
+    _one_sentence(err)
+    assert "not both" in err
+
+
+def test_model_file_builds_when_supported(tmp_path, capsys):
+    pytest.importorskip("surfgeo.slab.model")
+    from pathlib import Path
+
+    models = sorted((Path(__file__).resolve().parent.parent / "structures").glob("*.toml"))
+    if not models:
+        pytest.skip("no model files in structures/")
+    out = tmp_path / "m.extxyz"
+    code, text, err = _run(capsys, "build", str(models[0]), "-o", str(out), "--relax", "d12=-1%")
+    assert code == 0, err
+    assert ase.io.read(out).info["surfgeo"]["relaxations"][-1]["changes"]["d12"]["value"] == -1.0

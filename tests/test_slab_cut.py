@@ -358,3 +358,29 @@ def test_bad_input(kwargs, match):
         args["miller"] = (1, 1, 1)
     with pytest.raises(StructureError, match=match):
         surface_slab(args.pop("bulk"), args.pop("miller"), **args)
+
+
+# From memory: layer groups (International Tables Vol. E) of ideal symmetric slabs: fcc(100)
+# and bcc(100) p4/mmm (61), fcc(110) pmmm (37), bcc(110) cmmm (47), fcc(111) p-3m1 (72),
+# hcp(0001) with an odd number of layers (ABA: a mirror through the middle B layer, no
+# inversion) p-6m2 (78) and with an even number p-3m1 (72). Plane groups at normal incidence:
+# Common practice, no source (p4mm, p2mm, c2mm, p3m1; fcc(211) pm).
+# Source: spglib's layer-group finder run on surfgeo's slabs.
+OWN_SLABS = [
+    ("Cu", (1, 0, 0), 5, 61, "p4mm"),
+    ("Fe", (1, 0, 0), 5, 61, "p4mm"),
+    ("Cu", (1, 1, 0), 5, 37, "p2mm"),
+    ("Fe", (1, 1, 0), 5, 47, "c2mm"),
+    ("Cu", (1, 1, 1), 3, 72, "p3m1"),
+    ("Ru", (0, 0, 0, 1), 3, 78, "p3m1"),
+    ("Ru", (0, 0, 0, 1), 4, 72, "p3m1"),
+    ("Cu", (2, 1, 1), 6, None, "pm"),
+]
+
+
+@pytest.mark.parametrize("element,miller,layers,group,plane", OWN_SLABS, ids=lambda v: str(v))
+def test_spglib_layer_groups_of_own_slabs(element, miller, layers, group, plane):
+    sym = layer_symmetry(surface_slab(element, miller, layers=layers, size=(2, 2)))
+    if group is not None:
+        assert sym.layer_group == group
+    assert sym.plane_group == plane
