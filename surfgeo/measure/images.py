@@ -120,7 +120,12 @@ def _read_tiff(path: Path) -> np.ndarray:
                 raise FileFormatError(
                     f"{path} holds {npages} frames; give a single-frame image (split the stack first)."
                 )
-            return tif.pages[0].asarray()
+            page = tif.pages[0]
+            arr = page.asarray()
+            axes = getattr(page, "axes", "")
+            if arr.ndim == 3 and axes.startswith("S"):  # colour stored as separate planes
+                arr = np.moveaxis(arr, 0, -1)
+            return arr
     except FileFormatError:
         raise
     except Exception as exc:  # tifffile raises several types for damaged files
