@@ -217,3 +217,22 @@ def test_existing_output_needs_force(capsys, tmp_path):
     assert status == 0, err
     assert target.read_text().startswith("energy_eV")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["beams.csv"]
+
+
+def test_model_file_p4g_glide_extinctions(capsys):
+    from pathlib import Path
+
+    model = Path(__file__).resolve().parents[1] / "structures" / "ni100_c_p4g.toml"
+    status, out, err = _run(
+        capsys, "pattern", str(model), "--energy", "120", "--theta-max", "60", "--json", "-"
+    )
+    assert status == 0, err
+    beams = {tuple(b["hk"]): b for b in json.loads(out)["beams"]}
+    # Source: International Tables for Crystallography Vol. A, plane group p4g: h0 with h = 2n and 0k with
+    # k = 2n in the (2x2) cell, i.e. (1/2, 0), (0, 1/2), (3/2, 0) ... absent at normal incidence
+    for hk in [("1/2", "0"), ("0", "1/2"), ("-1/2", "0"), ("3/2", "0"), ("0", "-3/2")]:
+        assert (
+            beams[hk]["extinct"] is True and beams[hk]["intensity"] < 1e-10 * beams[("0", "0")]["intensity"]
+        )
+    for hk in [("1/2", "1/2"), ("1", "1/2"), ("1", "0")]:
+        assert beams[hk]["extinct"] is False
