@@ -300,6 +300,7 @@ def _domain_text(ds, nd: int) -> str:
 
 def _header(pattern_like, screen, energy_text: str) -> list[str]:
     from surfgeo.diffraction.beams import format_index
+    from surfgeo.lattice import basis_note
 
     base = pattern_like
     lat = base.lattice
@@ -308,7 +309,8 @@ def _header(pattern_like, screen, energy_text: str) -> list[str]:
     lines = [
         f"energy      {energy_text}",
         f"incidence   polar {inc[0]:g} deg, azimuth {inc[1]:g} deg from a1",
-        f"substrate   {lat.kind()}, |a1| = {a:.6g} A, |a2| = {b:.6g} A, gamma = {lat.gamma:.6g} deg",
+        f"substrate   {lat.kind()}, |a1| = {a:.6g} A, |a2| = {b:.6g} A, gamma = {lat.gamma:.6g} deg"
+        + (f" ({basis_note(lat)}; labels and matrices refer to it)" if basis_note(lat) else ""),
     ]
     desc = base.description or {}
     if desc.get("kind") == "slab":

@@ -54,7 +54,7 @@ from surfgeo.diffraction.electron import (
     wavenumber,
 )
 from surfgeo.errors import InputError, StructureError
-from surfgeo.lattice import Lattice2D
+from surfgeo.lattice import Lattice2D, basis_note
 
 #: Kinds of beam sources, simplest first (a beam produced in several ways keeps the first).
 SOURCES = ("substrate", "superstructure", "overlayer", "double")
@@ -419,6 +419,8 @@ class Pattern:
         }
         if self.description:
             out["source"] = self.description
+        if basis_note(self.lattice):
+            out["basis_note"] = basis_note(self.lattice)
         if screen is not None:
             out["screen"] = screen.to_dict()
         return out

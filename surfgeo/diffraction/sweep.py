@@ -24,6 +24,7 @@ from surfgeo.diffraction.pattern import (
     terrace_lattice,
 )
 from surfgeo.errors import InputError
+from surfgeo.lattice import basis_note
 
 #: Energies per block of the intensity calculation (one progress step each).
 BLOCK = 16
@@ -160,6 +161,8 @@ class PatternSweep:
         }
         if base.description:
             out["source"] = base.description
+        if basis_note(base.lattice):
+            out["basis_note"] = basis_note(base.lattice)
         if screen is not None:
             out["screen"] = screen.to_dict()
         return out
