@@ -74,7 +74,7 @@ from surfgeo.errors import InputError
 from surfgeo.measure.spotlist import SpotList
 
 #: Default detection threshold, in robust noise units of the matched-filtered image.
-DEFAULT_THRESHOLD = 5.0
+DEFAULT_THRESHOLD = 4.5
 #: Spot width assumed when it cannot be estimated, px.
 FALLBACK_SIGMA = 2.0
 #: Aperture radius (spot widths) for the integrated intensity.
@@ -84,7 +84,7 @@ ANNULUS = (4.0, 6.0)
 #: Gaussian truncation used by scipy.ndimage.gaussian_filter (its default).
 _TRUNCATE = 4.0
 #: Width (in meshes) of the Gaussian weight of the local quadratic smoothing of mesh grids.
-LOESS_WIDTH = 1.5
+LOESS_WIDTH = 1.0
 #: Rounds of background estimation with the spots found so far left out.
 BACKGROUND_ROUNDS = 1
 _MAD = 1.4826
@@ -228,7 +228,8 @@ def _mesh_stats(a: np.ndarray, o: np.ndarray, m: int):
     return med.astype(np.float64), mad.astype(np.float64), np.where(usable, count / (m * m), 0.0)
 
 
-def _mesh_planes(a: np.ndarray, o: np.ndarray, m: int, b: int, level: np.ndarray, noise: np.ndarray):
+def _mesh_planes(a: np.ndarray, o: np.ndarray, m: int, b: int, level: np.ndarray, noise: np.ndarray,
+                 step: int = 2):
     """Least-squares plane per m x m mesh of the subsampled image ``a`` over entries ``o``.
 
     ``a`` holds every second row and column, so its entries sit at full-resolution offsets
@@ -243,7 +244,7 @@ def _mesh_planes(a: np.ndarray, o: np.ndarray, m: int, b: int, level: np.ndarray
     v = a.reshape(h, m, w, m).transpose(0, 2, 1, 3).reshape(h, w, m * m).astype(np.float64)
     ok = o.reshape(h, m, w, m).transpose(0, 2, 1, 3).reshape(h, w, m * m)
     ok = ok & (np.abs(v - level[..., None]) <= 5 * noise[..., None])
-    off = 2.0 * np.arange(m) - (b - 1) / 2.0
+    off = step * np.arange(m) - (b - 1) / 2.0
     X = np.tile(off, m)
     Y = np.repeat(off, m)
     wgt = ok.astype(np.float64)
@@ -520,7 +521,10 @@ def _front(
     for _ in range(BACKGROUND_ROUNDS):
         s_med, s_noise, _ = zero_level(ok, False)
         ok = ok_sub & ~_sources(s_sub, s_med, s_noise, 2.5, sigma, m)
-        plane, wt = _mesh_planes(img_sub, ok & ~sat[::2, ::2] if any_sat else ok, m, b, bg0, pix_noise0)
+        ok_full = np.repeat(np.repeat(ok, 2, axis=0), 2, axis=1) & valid
+        if any_sat:
+            ok_full &= ~sat
+        plane, wt = _mesh_planes(img, ok_full, b, b, bg0, pix_noise0, step=1)
         bg = _loess_grid(plane, wt * (np.median(pix_noise0) / pix_noise0) ** 2)
         change = (ry @ (bg_prev - bg).astype(np.float32)) @ rx.T
         smooth += change  # now the filtered image minus the new background
@@ -543,7 +547,7 @@ def _front(
     bg = bg_prev
 
     # candidates: above a conservative piecewise-constant threshold, then exact test
-    thr = ndi.minimum_filter(s_med + threshold * s_noise, size=3, mode="nearest").astype(np.float32)
+    thr = ndi.minimum_filter(s_med + 0.9 * threshold * s_noise, size=3, mode="nearest").astype(np.float32)
     cand = (smooth.reshape(hb, b, wb, b) > thr[:, None, :, None]).reshape(hp, wp)
     if not all_valid:
         cand &= valid
@@ -561,21 +565,24 @@ def _front(
         is_max &= v >= flat[idx + off]
     idx = idx[is_max]
     rows, cols = np.divmod(idx, wp)
-    med = _interp_points(s_med, rows, cols, b)
-    noise = _interp_points(s_noise, rows, cols, b)
-    stat = (flat[idx] - med) / noise
-    keep = stat > threshold
-    idx, rows, cols, stat = idx[keep], rows[keep], cols[keep], stat[keep]
-    # parabolic sub-pixel peak of the filtered image (start of the refinement)
+    # parabolic sub-pixel peak of the filtered image: its position starts the refinement,
+    # its height (not the pixel's) is compared with the threshold
     c = flat[idx].astype(np.float64)
     l, r = flat[idx - 1], flat[idx + 1]
     u, d = flat[idx - wp], flat[idx + wp]
     with np.errstate(divide="ignore", invalid="ignore"):
-        dx = 0.5 * (l - r) / (l - 2 * c + r)
-        dy = 0.5 * (u - d) / (u - 2 * c + d)
-    dx = np.where(np.isfinite(dx), np.clip(dx, -0.5, 0.5), 0.0)
-    dy = np.where(np.isfinite(dy), np.clip(dy, -0.5, 0.5), 0.0)
-    peak = np.column_stack([cols + dx, rows + dy])
+        cx, cy = l - 2 * c + r, u - 2 * c + d
+        dx = np.where(cx < 0, 0.5 * (l - r) / cx, 0.0)
+        dy = np.where(cy < 0, 0.5 * (u - d) / cy, 0.0)
+    dx = np.clip(np.nan_to_num(dx), -0.5, 0.5)
+    dy = np.clip(np.nan_to_num(dy), -0.5, 0.5)
+    top = c - 0.5 * (cx * dx**2 + cy * dy**2)  # c + the parabolas' rise to their vertices
+    med = _interp_points(s_med, rows, cols, b)
+    noise = _interp_points(s_noise, rows, cols, b)
+    stat = (top - med) / noise
+    keep = stat > threshold
+    rows, cols, stat = rows[keep], cols[keep], stat[keep]
+    peak = np.column_stack([cols + dx[keep], rows + dy[keep]])
     return _Front(filled=filled, background=background, valid=valid, saturated=sat, bg_mesh=bg,
                   s_med=s_med, s_noise=s_noise, raw_noise=raw_noise, usable_mesh=usable_mesh,
                   rows=rows, cols=cols, stat=stat, peak=peak, b=b, filtered=smooth)

@@ -211,8 +211,9 @@ def find_screen(data: np.ndarray, lowres: _LowRes | None = None) -> ScreenDisc |
 
     The disc is accepted only if its rim is well described by a circle (at least half of
     the rim pixels within 1.5 block-pixels of it, RMS deviation at most 1.5 block-pixels),
-    the bright region fills most of the circle, and the contrast between the screen and
-    the surroundings is at least 5 times the noise of the block averages.
+    the bright region fills most of the circle, the contrast between the screen and the
+    surroundings is at least 5 times the noise of the block averages, and the rim is sharp
+    (more than half of that contrast is crossed within +-2 block-pixels of the circle).
 
     Parameters
     ----------
@@ -254,6 +255,20 @@ def find_screen(data: np.ndarray, lowres: _LowRes | None = None) -> ScreenDisc |
     yy, xx = _grid(img.shape)
     circle = (xx - cx) ** 2 + (yy - cy) ** 2 <= (r + 0.5) ** 2
     if comp[circle].mean() < 0.7 or circle[comp].mean() < 0.95:
+        return None
+    # a screen has a sharp rim: across +-2 block-pixels most of the inside-outside contrast
+    # is crossed (the iso-line of a smooth glow is round too, but its edge is gentle)
+    ang = np.linspace(0, 2 * np.pi, 180, endpoint=False)
+    cos, sin = np.cos(ang), np.sin(ang)
+    inner = ndi.map_coordinates(img, [cy + (r - 2) * sin, cx + (r - 2) * cos], order=1, mode="nearest")
+    outer = ndi.map_coordinates(img, [cy + (r + 2) * sin, cx + (r + 2) * cos], order=1, mode="nearest")
+    on_image = ((cx + (r + 2) * cos >= 0) & (cx + (r + 2) * cos <= img.shape[1] - 1)
+                & (cy + (r + 2) * sin >= 0) & (cy + (r + 2) * sin <= img.shape[0] - 1))
+    if on_image.sum() < 30:
+        return None
+    contrast = float(np.median(img[comp]) - np.median(img[~ndi.binary_dilation(comp, iterations=2)]))
+    step = float(np.median((inner - outer)[on_image]))
+    if not step > 0.5 * contrast:
         return None
     # rim pixels are the outermost bright pixels: the threshold crossing is half a block further
     return ScreenDisc(centre_x=(cx + 0.5) * f - 0.5, centre_y=(cy + 0.5) * f - 0.5, radius=(r + 0.5) * f)
