@@ -67,10 +67,17 @@ def atomic_output(path: str | os.PathLike, force: bool = False) -> Iterator[Path
         yield tmp
         if not force and target.exists():  # appeared while we were writing
             raise OutputExistsError(f"{target} already exists; pass --force to overwrite it.")
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual permissions
         os.replace(tmp, target)
     finally:
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_bytes(path: str | os.PathLike, data: bytes, force: bool = False) -> Path:
