@@ -59,6 +59,23 @@ def test_decimals_stand_for_small_rationals_within_their_printed_precision():
         parse_number("abc", "x")
 
 
+def test_a_decimal_that_is_a_small_rational_is_taken_as_typed():
+    # Regression: 0.1 used to become 1/8, 0.3 became 1/3 and 1.1 became 8/7 (the smallest
+    # denominator within half a unit of the last digit won over the exact value typed).
+    assert parse_number("0.1", "x") == (Fraction(1, 10), 1)
+    assert parse_number("0.3", "x") == (Fraction(3, 10), 1)
+    assert parse_number("1.1", "x") == (Fraction(11, 10), 1)
+    assert parse_number("-0.7", "x") == (Fraction(-7, 10), 1)
+    # rounded decimals still stand for the small rational they round
+    assert parse_number("0.33", "x") == (Fraction(1, 3), 2)
+    assert parse_number("0.667", "x") == (Fraction(2, 3), 3)
+    sup = Superstructure(HEX, ["1.5", "0.3", "0", "1"])
+    assert sup.matrix[0, 1] == Fraction(3, 10) and sup.kind == "coincidence"
+    film = Superstructure.from_wood(HEX, "(1.1x1.1)")
+    assert film.matrix.tolist() == [[Fraction(11, 10), 0], [0, Fraction(11, 10)]]
+    assert film.determinant == Fraction(121, 100)
+
+
 @pytest.mark.parametrize(
     "lattice, wood, n, coverage",
     [

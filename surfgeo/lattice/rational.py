@@ -2,9 +2,10 @@
 
 A superstructure matrix is held exactly, as a 2x2 numpy ``object`` array of
 :class:`fractions.Fraction`, whenever its entries are rational; otherwise as a float array.
-Decimals typed by a person (``0.5``, ``0.333``) stand for the simplest rational within half
-a unit of their last digit, if one with a small denominator (at most
-:data:`SMALL_DENOMINATOR`) exists. Wood scale factors such as ``2√3`` are :class:`Surd`
+Decimals typed by a person stand for themselves when they are small rationals (``0.5``,
+``0.3`` = 3/10, ``1.1`` = 11/10); otherwise (``0.333``) for the simplest rational within half a
+unit of their last digit, if one with a small denominator (at most :data:`SMALL_DENOMINATOR`)
+exists. Wood scale factors such as ``2√3`` are :class:`Surd`
 values ``c √m`` with rational ``c`` and square-free ``m``.
 """
 
@@ -52,9 +53,10 @@ def parse_number(text: str, field: str) -> tuple[Fraction | float, int | None]:
     Returns
     -------
     value : Fraction or float
-        Exact for integers and fractions; for decimals the simplest rational within half a
-        unit of the last digit (denominator at most :data:`SMALL_DENOMINATOR`), otherwise the
-        decimal itself as a float.
+        Exact for integers and fractions, and for decimals whose exact value has a denominator
+        of at most :data:`SMALL_DENOMINATOR` (``0.3`` is 3/10, never 1/3). Other decimals stand
+        for the simplest rational within half a unit of the last digit (denominator at most
+        :data:`SMALL_DENOMINATOR`: ``0.333`` is 1/3), otherwise for the decimal itself as a float.
     decimals : int or None
         Number of digits after the decimal point for decimals, ``None`` for exact input.
 
@@ -80,6 +82,10 @@ def parse_number(text: str, field: str) -> tuple[Fraction | float, int | None]:
     if "e" in s.lower():
         decimals -= int(s.lower().split("e")[1])
     decimals = max(decimals, 0)
+    if exact.denominator <= SMALL_DENOMINATOR:
+        # the decimal is itself a small rational (0.1 = 1/10, 1.1 = 11/10, 0.3 = 3/10): take it as
+        # typed, even when a rational with a smaller denominator lies within half a unit
+        return exact, decimals
     half_unit = Fraction(1, 2 * 10**decimals)
     for d in range(1, SMALL_DENOMINATOR + 1):
         r = Fraction(round(exact * d), d)
