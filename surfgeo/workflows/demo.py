@@ -585,7 +585,9 @@ def _orientations(slab, images: list[ImageAnalysis], calibration, ops) -> tuple:
         misfits = sum(len(f.match.unexplained) + f.absent_expected for f in fits)
         r = _total_r(fits)
         tried[_op_text(op)] = r
-        key = (misfits, r if math.isfinite(r) else math.inf)
+        # rounded, so that orientations equivalent under the substrate's symmetry tie exactly and the
+        # first of them (the identity first) is kept
+        key = (misfits, round(r, 9) if math.isfinite(r) else math.inf)
         if best is None or key < best[0]:
             best = (key, op, fits)
     return best[0], best[1], best[2], tried

@@ -219,7 +219,8 @@ def _write_into(result, folder: Path, dpi: int) -> DemoFiles:
 
     data = result.to_dict()
     data["dft_export"] = {"file": dft.name, "note": note_path(dft).name, "kpoints": note.get("kpoints"),
-                          "constraints": note.get("constraints"), "caution": note.get("caution")}
+                          "constraints": note.get("constraints"),
+                          "dipole_correction": note.get("dipole_correction"), "caution": note.get("caution")}
     data["files"] = {"report": REPORT_FILE, "results": RESULTS_FILE,
                      "figures": sorted(figures), "others": {k: v.name for k, v in others.items()}}
     results = folder / RESULTS_FILE
@@ -474,7 +475,9 @@ def render_html(result, figures: dict, others: dict, data: dict) -> str:
             "energies. The decision rests on the kinematic intensities.</p>")
     add(f"<p>Best model: <b>{_e(best.name)}</b> (<code>{_e(best.file)}</code>), superstructure "
         f"{_e(best.wood or best.matrix)} with {best.n_domains} domain(s); energy offset "
-        f"{best.energy_offset:+.2f} eV; crystal azimuth on the screen: {_e(_op_text(best.orientation))}.</p>")
+        f"{best.energy_offset:+.2f} eV; crystal azimuth on the screen: {_e(_op_text(best.orientation))} "
+        "(orientations that differ by a symmetry of the substrate give the same pattern; the spot "
+        "positions cannot tell the crystal from its copy turned by 60\u00b0, the intensities can).</p>")
 
     # step 1
     add("<h2>1. Spots found</h2><table><tr><th class='l'>image</th><th>energy (eV)</th><th>spots</th>"
@@ -558,9 +561,17 @@ def render_html(result, figures: dict, others: dict, data: dict) -> str:
         f"its note <a href='{_e(others['DFT note'].name)}'>{_e(others['DFT note'].name)}</a>.</p>")
     dft = data.get("dft_export", {})
     kp = (dft.get("kpoints") or {}).get("mesh")
+    con = dft.get("constraints") or {}
+    items = []
     if kp:
-        add(f"<p>Suggested k-point mesh {_e(' x '.join(str(v) for v in kp))}; "
-            f"{_e((dft.get('constraints') or {}).get('description', ''))}</p>")
+        items.append(f"suggested k-point mesh {' x '.join(str(v) for v in kp)}")
+    if con.get("rule"):
+        items.append(f"{con['rule']} ({con.get('fixed', '?')} atoms)")
+    dip = dft.get("dipole_correction") or {}
+    if dip.get("recommended"):
+        items.append(f"dipole correction recommended: {dip.get('reason', '')}")
+    if items:
+        add("<ul>" + "".join(f"<li>{_e(t)}</li>" for t in items) + "</ul>")
     add(_figure("slab.png", figures["slab.png"], f"Top and side view of {best.name}."))
 
     # step 6
