@@ -133,6 +133,29 @@ def test_no_wood_form_on_square():
     assert Superstructure(SQUARE, [[2, 1], [-1, 3]]).wood() is None
 
 
+@pytest.mark.parametrize("n", [300, 1000])
+def test_long_cells_have_no_spurious_slightly_rotated_forms(n):
+    # Regression: the membership test used a tolerance in superlattice coordinates, which grows
+    # with the cell, so (1000x1) also reported c(sqrt3998001x1)R0.0 (a cell rotated by 0.02 deg).
+    # Derived by hand: on the hexagonal lattice (n x 1) = (1 x n)R-60 (R(-60) a1 = -a2 and
+    # R(-60) a2 = a1 + a2), and every Wood basis must be a basis of the same superlattice.
+    M = [[n, 0], [0, 1]]
+    forms = matrix_to_wood(HEX, M)
+    assert [f.ascii for f in forms] == [f"({n}x1)", f"(1x{n})R-60"]
+    assert all(equivalent(wood_to_matrix(HEX, f), M) for f in forms)
+
+
+def test_matrix_entries_are_bounded_and_singularity_is_relative():
+    # Regression: [[1e300, 0], [0, 1e300]] crashed with OverflowError, and the non-singular
+    # [[1e9, 0], [0, 1]] was called singular (an absolute tolerance on the determinant).
+    for m in ([[1e300, 0], [0, 1e300]], [["1e9", "0"], ["0", "1"]], [[1001, 0], [0, 1]]):
+        with pytest.raises(NotationError, match="between -1000 and 1000"):
+            Superstructure(HEX, m)
+    with pytest.raises(NotationError, match="singular"):
+        Superstructure(HEX, [[1, 2], [2, 4.0000000001]])
+    assert Superstructure(HEX, [[1000, 0], [0, 1]]).determinant == 1000
+
+
 # --------------------------------------------------------------------------- parsing
 @pytest.mark.parametrize(
     "text, expected",

@@ -27,6 +27,10 @@ SMALL_DENOMINATOR = 12
 #: Relative tolerance with which a computed float is taken to be a small rational.
 FLOAT_RTOL = 1e-9
 
+#: Largest magnitude of a superstructure matrix entry (in substrate vectors): far beyond any
+#: superstructure seen by diffraction, and small enough for exact and float arithmetic alike.
+MAX_ENTRY = 1000
+
 _DECIMAL = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 _FRACTION = re.compile(r"^[+-]?\d+\s*/\s*[+-]?\d+$")
 
@@ -123,7 +127,8 @@ def as_matrix(M, field: str = "matrix") -> np.ndarray:
     Raises
     ------
     NotationError
-        If there are not four finite numbers, or the matrix is singular.
+        If there are not four finite numbers, an entry exceeds :data:`MAX_ENTRY` in magnitude,
+        or the matrix is singular.
     """
     if isinstance(M, np.ndarray) and M.dtype == object and M.shape == (2, 2) and all(
         isinstance(v, Fraction) for v in M.flat
@@ -152,15 +157,29 @@ def as_matrix(M, field: str = "matrix") -> np.ndarray:
                 raise NotationError(f"{field} entries must be numbers, got {v!r}.")
         if not all(math.isfinite(float(v)) for v in values):
             raise NotationError(f"{field} entries must be finite numbers.")
+        if any(abs(v) > MAX_ENTRY for v in values):
+            raise NotationError(
+                f"{field} entries must lie between -{MAX_ENTRY} and {MAX_ENTRY} substrate vectors, got "
+                f"{', '.join(str(v) for v in arr.ravel())}."
+            )
         exact = [rationalise(v) for v in values]
         if all(e is not None for e in exact):
             out = np.empty((2, 2), dtype=object)
             out[:] = [[exact[0], exact[1]], [exact[2], exact[3]]]
         else:
             out = np.array([float(v) for v in values], dtype=float).reshape(2, 2)
+    if any(abs(v) > MAX_ENTRY for v in out.flat):
+        raise NotationError(
+            f"{field} entries must lie between -{MAX_ENTRY} and {MAX_ENTRY} substrate vectors, got "
+            f"{format_matrix(out)}."
+        )
     d = det2(out)
-    scale = max(1.0, float(np.max(np.abs(out.astype(float)))))
-    if d == 0 or abs(float(d)) <= 1e-9 * scale * scale:
+    if is_exact(out):
+        singular = d == 0
+    else:  # |det| against the product of the row lengths: the sine of the angle between the rows
+        rows = np.abs(out.astype(float))
+        singular = abs(float(d)) <= 1e-9 * float(np.hypot(*rows[0]) * np.hypot(*rows[1]))
+    if singular:
         raise NotationError(
             f"{field} {to_plain(out)} is singular (determinant 0); its rows must be two "
             "non-parallel superlattice vectors."

@@ -47,7 +47,10 @@ from surfgeo.lattice.rational import (
     to_float,
 )
 
-#: Tolerance on superlattice coordinates when testing lattice membership in the Wood search.
+#: Tolerance, in units of the longer substrate vector, on the distance between a candidate second
+#: Wood vector and the nearest superlattice vector when testing membership in the Wood search.
+#: (A tolerance on superlattice coordinates instead would grow with the cell and accept
+#: spurious, slightly rotated forms of very long cells such as (1000x1).)
 MEMBER_TOL = 1e-6
 
 #: Largest denominator tried when snapping a matrix derived from rounded Wood notation.
@@ -444,7 +447,8 @@ def _search(lattice: Lattice2D, Mf: np.ndarray) -> list[tuple[bool, float, float
         sel = n2 <= (rad_c if centred else rad_p) ** 2 * (1 + 1e-9)
         k2 = (dir2[sel] * (factor * detm / p[sel])[:, None]) @ Binv
         k2r = np.rint(k2)
-        ok = np.all(np.abs(k2 - k2r) <= MEMBER_TOL * np.maximum(1.0, np.abs(k2)), axis=1)
+        miss = np.linalg.norm((k2 - k2r) @ B, axis=1)  # Angstrom from the nearest superlattice vector
+        ok = miss <= MEMBER_TOL * max(la1, la2) + 1e-9 * np.linalg.norm(k2 @ B, axis=1)
         if centred:
             ok &= np.all((k1[sel] + k2r.astype(np.int64)) % 2 == 0, axis=1)
         idx = np.nonzero(ok)[0]
