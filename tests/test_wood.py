@@ -198,6 +198,13 @@ def test_malformed_wood_is_one_clear_sentence(text):
     assert "Wood" in msg or "scale factor" in msg
 
 
+@pytest.mark.parametrize("text", ["(-2x1)", "(2x-sqrt3)", "(−2x1)"])
+def test_negative_scale_factor_is_called_negative(text):
+    # Regression: "(-2x1)" was reported as "'-2' ... is not a number".
+    with pytest.raises(NotationError, match="must be positive"):
+        parse_wood(text)
+
+
 def test_surd_printing():
     # Common practice, no source: sqrt12 = 2 sqrt3, sqrt(9/4) = 3/2, sqrt(7/9) = sqrt7/3.
     assert Surd.from_square(Fraction(12)).unicode == "2√3"

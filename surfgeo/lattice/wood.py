@@ -179,6 +179,8 @@ def _parse_factor(text: str, which: str, whole: str) -> tuple[Surd | float, int 
             f"Wood notation {whole!r} lacks scale factor {which}; write two, as in {_EXAMPLES}."
         )
     m = _FACTOR.match(s)
+    if s.startswith("-") and _FACTOR.match(s[1:]):
+        raise NotationError(f"scale factor {text!r} in Wood notation {whole!r} must be positive.")
     if not s or not m or (m.group("c") is None and m.group("r") is None):
         raise NotationError(
             f"scale factor {text!r} in Wood notation {whole!r} is not a number; write it as 2, 1.5, "
