@@ -148,6 +148,16 @@ def test_bad_output_names(tmp_path, capsys):
     assert os.listdir(tmp_path) == []
 
 
+def test_colliding_output_names_leave_nothing(tmp_path, capsys):
+    out = tmp_path / "s.extxyz"
+    code, _, err = _run(capsys, "build", "--crystal", "Cu", "--miller", "1", "1", "1", "-o", str(out),
+                        "--json", str(out))
+    assert code == 2
+    _one_sentence(err)
+    assert "-o and --json name the same file" in err
+    assert os.listdir(tmp_path) == []
+
+
 def test_help_has_a_worked_example(capsys):
     with pytest.raises(SystemExit):
         main(["build", "--help"])

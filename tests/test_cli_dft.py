@@ -93,6 +93,28 @@ def test_export_bad_input(files, capsys, argv, phrase):
     assert not list(files.glob("OUT*"))  # nothing written
 
 
+@pytest.mark.parametrize("json_name", ["OUT.vasp", "OUT.vasp.note.json"])
+def test_export_json_on_the_output_or_the_note_leaves_nothing(files, capsys, json_name):
+    # Regression: the structure and the note were written before --json was refused.
+    argv = ["export", str(files / "ref.extxyz"), str(files / "OUT.vasp"), "--json", str(files / json_name)]
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    _one_sentence_error(err)
+    assert "name the same file" in err
+    assert not list(files.glob("OUT*"))
+
+
+def test_relaxations_json_and_plot_on_the_same_file_leave_nothing(files, capsys):
+    # Regression: the JSON was written into r.png and then the figure was refused.
+    same = files / "r.png"
+    assert main(["relaxations", str(files / "CONTCAR"), "--reference", str(files / "ref.extxyz"),
+                 "--json", str(same), "--plot", str(same)]) == 2
+    err = capsys.readouterr().err
+    _one_sentence_error(err)
+    assert "--json and --plot name the same file" in err
+    assert not same.exists()
+
+
 # ----------------------------------------------------------------------------- relaxations
 def test_relaxations_table_json_and_figure(files, capsys):
     js, png = files / "r.json", files / "r.png"

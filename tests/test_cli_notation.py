@@ -139,6 +139,17 @@ def test_bad_plot_name_leaves_nothing(tmp_path, capsys):
     assert list(tmp_path.iterdir()) == []
 
 
+def test_json_and_plot_on_the_same_file_leave_nothing(tmp_path, capsys):
+    # Regression: both names passed the existence check, the JSON was written into same.png and
+    # the figure was then refused, leaving a half-done output behind.
+    same = tmp_path / "same.png"
+    argv = ["notation", "--lattice", "hex:2.77", "(2x1)", "--json", str(same), "--plot", str(same)]
+    rc, out, err = run(argv, capsys)
+    assert rc == 2 and "same file" in err and err.strip().count("\n") == 0 and "Traceback" not in err
+    assert out == ""
+    assert list(tmp_path.iterdir()) == []
+
+
 def test_shared_superstructure_options_for_other_commands():
     import argparse
 

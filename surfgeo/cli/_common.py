@@ -40,6 +40,53 @@ def add_output_options(parser: argparse.ArgumentParser, plot: bool = False) -> N
     parser.add_argument("--force", action="store_true", help="overwrite existing output files")
 
 
+FIGURE_SUFFIXES = (".png", ".svg")
+
+
+def check_outputs(outputs: dict[str, str | None], force: bool = False, figure: str | None = None) -> None:
+    """Refuse, before any work is done, outputs that cannot or must not be written.
+
+    Parameters
+    ----------
+    outputs : dict
+        Option name (``"--json"``, ``"-o"``, ``"OUTPUT"`` ...) to the file name given for it;
+        ``None`` (not requested) and ``"-"`` (standard output) are not files and are skipped.
+    force : bool
+        ``--force``: existing files may be replaced.
+    figure : str, optional
+        The option among ``outputs`` that names a figure; its name must end in .png or .svg.
+
+    Raises
+    ------
+    InputError
+        When two options name the same file (the second write would replace or refuse the
+        first after it was written), when the figure name has another ending, or when a
+        folder does not exist.
+    OutputExistsError
+        When a file exists and ``force`` is false.
+    """
+    from pathlib import Path
+
+    from surfgeo.errors import InputError
+    from surfgeo.io import check_writable
+
+    if figure and outputs.get(figure) and Path(outputs[figure]).suffix.lower() not in FIGURE_SUFFIXES:
+        raise InputError(f"{figure} {outputs[figure]}: the figure must end in .png or .svg.")
+    seen: dict[str, str] = {}
+    for option, path in outputs.items():
+        if not path or path == "-":
+            continue
+        key = str(Path(path).resolve())
+        if key in seen:
+            raise InputError(
+                f"{seen[key]} and {option} name the same file {path}; give each output its own name."
+            )
+        seen[key] = option
+    for path in outputs.values():
+        if path and path != "-":
+            check_writable(path, force)
+
+
 def add_superstructure_options(parser: argparse.ArgumentParser, wood_positional: bool = True) -> None:
     """A superstructure given either as ``--matrix M11 M12 M21 M22`` or in Wood notation.
 

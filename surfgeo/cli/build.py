@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from surfgeo.cli._common import add_output_options
+from surfgeo.cli._common import add_output_options, check_outputs
 
 ORDER = 20
 
@@ -134,22 +134,6 @@ def _output_format(path: str) -> str:
     return fmt
 
 
-def _check_outputs(args) -> None:
-    """Refuse early (before any work) when an output exists or outputs collide."""
-    from pathlib import Path
-
-    from surfgeo.errors import InputError
-    from surfgeo.io import check_writable
-
-    outs = [args.output] + [x for x in (args.json, args.plot) if x and x != "-"]
-    if len({str(Path(x).resolve()) for x in outs}) != len(outs):
-        raise InputError("the structure file, --json and --plot must be different files.")
-    if args.plot and Path(args.plot).suffix.lower() not in (".png", ".svg"):
-        raise InputError(f"--plot {args.plot}: the figure must end in .png or .svg.")
-    for x in outs:
-        check_writable(x, args.force)
-
-
 def build_from_args(args):
     """The slab (and the bulk crystal, or None for a model) for parsed ``build`` arguments."""
     from surfgeo.errors import InputError
@@ -216,7 +200,7 @@ def run(args) -> int:
     from surfgeo.slab.summary import format_summary, slab_summary
 
     fmt = _output_format(args.output)
-    _check_outputs(args)
+    check_outputs({"-o": args.output, "--json": args.json, "--plot": args.plot}, args.force, figure="--plot")
     atoms, bulk = build_from_args(args)
     summary = slab_summary(atoms)
     if bulk is not None and args.miller:

@@ -75,16 +75,14 @@ def _pseudos(items: list[str]) -> dict:
 
 
 def run(args) -> int:
-    from surfgeo.io import check_writable, dump_json
+    from surfgeo.cli._common import check_outputs
+    from surfgeo.io import dump_json
     from surfgeo.io.dft import export_slab, format_for, note_path
     from surfgeo.io.structures import read_structure
 
     fmt = format_for(args.output, args.fmt)
-    check_writable(args.output, args.force)
-    if not args.no_note:
-        check_writable(note_path(args.output), args.force)
-    if args.json and args.json != "-":
-        check_writable(args.json, args.force)
+    note_file = None if args.no_note else note_path(args.output)
+    check_outputs({"OUTPUT": args.output, "the companion note": note_file, "--json": args.json}, args.force)
     atoms = read_structure(args.model, args.frame)
     note = export_slab(
         atoms, args.output, fmt.name, bottom=args.fix_bottom, below=args.fix_below, middle=args.fix_middle,

@@ -9,6 +9,7 @@ from surfgeo.cli._common import (
     add_lattice_option,
     add_output_options,
     add_superstructure_options,
+    check_outputs,
     resolve_lattice,
     resolve_superstructure,
 )
@@ -106,18 +107,11 @@ def report_lines(sup, unicode: bool = True) -> list[str]:
 
 
 def run(args: argparse.Namespace) -> int:
-    from surfgeo.io import check_writable, dump_json
+    from surfgeo.io import dump_json
 
     lattice = resolve_lattice(args.lattice)
     sup = resolve_superstructure(args, lattice)
-    for dest in (args.json, getattr(args, "plot", None)):
-        if dest and dest != "-":
-            check_writable(dest, args.force)
-    if args.plot:
-        from surfgeo.errors import InputError
-
-        if not args.plot.lower().endswith((".png", ".svg")):
-            raise InputError(f"--plot {args.plot!r} must end in .png or .svg.")
+    check_outputs({"--json": args.json, "--plot": args.plot}, args.force, figure="--plot")
     record = sup.to_dict()
     if args.json != "-":
         out = sys.stdout

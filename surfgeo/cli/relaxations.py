@@ -74,17 +74,12 @@ def _adsorbate_spec(text: str | None):
 
 
 def run(args) -> int:
-    from surfgeo.io import check_writable, dump_json
+    from surfgeo.cli._common import check_outputs
+    from surfgeo.io import dump_json
     from surfgeo.io.structures import read_structure
     from surfgeo.slab.relaxations import analyse_relaxation
 
-    for dest in (args.json, args.plot):
-        if dest and dest != "-":
-            check_writable(dest, args.force)
-    if args.plot and not args.plot.lower().endswith((".png", ".svg")):
-        from surfgeo.errors import InputError
-
-        raise InputError(f"--plot takes a .png or .svg file name, got {args.plot!r}.")
+    check_outputs({"--json": args.json, "--plot": args.plot}, args.force, figure="--plot")
     adsorbates = _adsorbate_spec(args.adsorbates)
     reference = read_structure(args.reference)
     relaxed = read_structure(args.relaxed, args.frame, args.fmt)
