@@ -117,7 +117,8 @@ def check_output_folder(out: str | os.PathLike, force: bool = False) -> Path:
     return out
 
 
-def write_demo_folder(result, out: str | os.PathLike, force: bool = False, dpi: int = 110) -> DemoFiles:
+def write_demo_folder(result, out: str | os.PathLike, force: bool = False, dpi: int = 110,
+                      show_progress: bool | None = None) -> DemoFiles:
     """Write the report, figures, JSON results and DFT input of a demo run into the folder ``out``.
 
     Everything is written into a temporary folder beside ``out`` first and renamed at the end;
@@ -133,6 +134,8 @@ def write_demo_folder(result, out: str | os.PathLike, force: bool = False, dpi: 
         Replace an earlier demo folder.
     dpi : int
         Resolution of the PNG figures.
+    show_progress : bool, optional
+        Draw a progress line (default: only when stderr is a terminal).
 
     Returns
     -------
@@ -144,7 +147,7 @@ def write_demo_folder(result, out: str | os.PathLike, force: bool = False, dpi: 
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=parent))
     try:
         os.chmod(tmp, 0o777 & ~_umask())  # mkdtemp makes it private; the final folder is an ordinary one
-        files = _write_into(result, tmp, dpi)
+        files = _write_into(result, tmp, dpi, show_progress)
         if out.exists():
             check_output_folder(out, force)
             old = Path(tempfile.mkdtemp(prefix=f".{out.name}.old.", dir=parent))
@@ -182,41 +185,55 @@ def _energy_tag(energy: float) -> str:
     return f"{int(round(energy)):03d}eV"
 
 
-def _write_into(result, folder: Path, dpi: int) -> DemoFiles:
-    from surfgeo.io import dump_json
+def _write_into(result, folder: Path, dpi: int, show_progress: bool | None = None) -> DemoFiles:
+    from surfgeo.io import dump_json, write_text
     from surfgeo.io.dft import export_slab, note_path
     from surfgeo.io.spots import write_spot_csv
+    from surfgeo.progress import progress
     from surfgeo.workflows.demo import DFT_FILE, DFT_FIXED_LAYERS, DFT_VACUUM
 
     figures: dict[str, Path] = {}
     others: dict[str, Path] = {}
-    for im in result.images:
-        tag = _energy_tag(im.energy)
-        p = folder / f"overlay_{tag}.png"
-        save_overlay(result, im, p, dpi)
-        figures[p.name] = p
-        c = folder / f"spots_{tag}.csv"
-        write_spot_csv(c, im.spots)
-        others[f"spots {im.energy:g} eV"] = c
-    p = folder / "candidates.png"
-    save_candidates(result, p, dpi)
-    figures[p.name] = p
-    p = folder / f"spotmap_{_energy_tag(result.next_energy)}.png"
-    save_spot_map(result, p, dpi)
-    figures[p.name] = p
-    p = folder / "slab.png"
-    save_slab(result, p, dpi)
-    figures[p.name] = p
-
     best = result.best
     dft = folder / DFT_FILE
-    note = export_slab(best.slab, dft, bottom=DFT_FIXED_LAYERS, vacuum=DFT_VACUUM, source=best.file)
-    others["DFT input"] = dft
-    others["DFT note"] = note_path(dft)
-    cal = folder / "calibration.json"
-    dump_json(best.calibration.to_dict(), cal)
-    others["calibration"] = cal
+    notes: dict = {}
 
+    def overlay(im):
+        def task():
+            tag = _energy_tag(im.energy)
+            p = folder / f"overlay_{tag}.png"
+            save_overlay(result, im, p, dpi)
+            figures[p.name] = p
+            c = folder / f"spots_{tag}.csv"
+            write_spot_csv(c, im.spots)
+            others[f"spots {im.energy:g} eV"] = c
+        return task
+
+    def figure_task(name: str, fn):
+        def task():
+            p = folder / name
+            fn(result, p, dpi)
+            figures[p.name] = p
+        return task
+
+    def dft_task():
+        notes["dft"] = export_slab(best.slab, dft, bottom=DFT_FIXED_LAYERS, vacuum=DFT_VACUUM,
+                                   source=best.file)
+        others["DFT input"] = dft
+        others["DFT note"] = note_path(dft)
+        cal = folder / "calibration.json"
+        dump_json(best.calibration.to_dict(), cal)
+        others["calibration"] = cal
+
+    tasks = [overlay(im) for im in result.images] + [
+        figure_task("candidates.png", save_candidates),
+        figure_task(f"spotmap_{_energy_tag(result.next_energy)}.png", save_spot_map),
+        figure_task("slab.png", save_slab),
+        dft_task,
+    ]
+    for task in progress(tasks, desc="writing the report", enabled=show_progress):
+        task()
+    note = notes["dft"]
     data = result.to_dict()
     data["dft_export"] = {"file": dft.name, "note": note_path(dft).name, "kpoints": note.get("kpoints"),
                           "constraints": note.get("constraints"),
@@ -226,8 +243,6 @@ def _write_into(result, folder: Path, dpi: int) -> DemoFiles:
     results = folder / RESULTS_FILE
     dump_json(data, results)
     report = folder / REPORT_FILE
-    from surfgeo.io import write_text
-
     write_text(report, render_html(result, figures, others, data))
     return DemoFiles(folder, report, results, figures, others)
 
