@@ -483,6 +483,9 @@ def render_html(result, figures: dict, others: dict, data: dict) -> str:
     # the answer
     add("<h2>The answer</h2>")
     add(f"<p class='answer'>{_e(ans['sentence'])}</p>")
+    add("<p class='small'>An R close to zero is what synthetic data made by the same kinematic model give; "
+        "with measured data kinematic intensities agree only qualitatively, R stays large for every model, "
+        "and only clear differences between candidates mean anything.</p>")
     groups = [g for g in result.position_groups if len(g) > 1]
     if groups:
         names = "; ".join(", ".join(g) for g in groups)
