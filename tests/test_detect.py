@@ -321,13 +321,29 @@ def test_excluded_pixels_are_ignored():
 
 
 def test_pure_noise_gives_few_false_spots():
-    total = 0
-    for seed in range(4):
-        syn = render_pattern((384, 384), np.zeros((0, 2)), [], 2.0, glow_level=200, glow_peak=500, seed=seed)
-        total += len(detect_spots(syn.image, spot_sigma=2.0).spots)
-    # Common practice, no source: a 5-sigma threshold gives of order 0.1 noise peaks per
-    # 10^5 px for a matched filter of 2 px (Gaussian random field peak counts)
-    assert total <= 3
+    s, size, n_img = 2.0, 384, 6
+    counts = {4.5: 0, 5.0: 0}
+    reported = []
+    for seed in range(n_img):
+        syn = render_pattern((size, size), np.zeros((0, 2)), [], s, glow_level=200, glow_peak=500, seed=seed)
+        for thr in counts:
+            det = detect_spots(syn.image, spot_sigma=s, threshold=thr)
+            counts[thr] += len(det.spots)
+            if thr == 4.5:
+                reported.extend(det.spots.snr)
+    area = n_img * size * size
+
+    def expected(u):
+        # From memory: expected Euler characteristic of the excursion set above u of a
+        # smooth Gaussian random field in 2D (Worsley et al., Hum. Brain Mapp. 4, 58 (1996)),
+        # A lambda / (2 pi)^(3/2) u exp(-u^2 / 2), with lambda = 1 / (2 s^2) for white noise
+        # smoothed by a Gaussian of width s; at high u it counts the local maxima above u
+        return area / (2 * s**2) / (2 * np.pi) ** 1.5 * u * np.exp(-u * u / 2)
+
+    assert counts[5.0] <= 3 * expected(5.0) + 2
+    assert counts[4.5] <= 3 * expected(4.5) + 2
+    # noise peaks found at the default threshold report a signal-to-noise ratio below 5
+    assert all(v < 5 for v in reported)
 
 
 def test_deterministic():

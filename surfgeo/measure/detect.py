@@ -373,6 +373,16 @@ def _pooled_noise(dev: np.ndarray, ok: np.ndarray, guess: np.ndarray, m: int) ->
     return np.sqrt(np.maximum(var, 0) / 0.97334)
 
 
+def _smooth_meshes(grid: np.ndarray, weights: np.ndarray, width: float = 1.0) -> np.ndarray:
+    """Normalised Gaussian convolution of a mesh grid (``width`` meshes); zero-weight meshes filled."""
+    wv = np.maximum(np.asarray(weights, dtype=float), 0.0)
+    num = ndi.gaussian_filter(np.where(wv > 0, grid, 0.0) * wv, width, mode="constant")
+    den = ndi.gaussian_filter(wv, width, mode="constant")
+    out = np.where(den > 1e-9, num / np.maximum(den, 1e-300), np.nan)
+    known = np.isfinite(out)
+    return _fill_meshes(out, known) if known.any() else np.asarray(grid, dtype=float)
+
+
 def _fill_meshes(grid: np.ndarray, usable: np.ndarray) -> np.ndarray:
     """Replace unusable mesh values by the nearest usable one."""
     if usable.all():
@@ -381,30 +391,65 @@ def _fill_meshes(grid: np.ndarray, usable: np.ndarray) -> np.ndarray:
     return grid[iy, ix]
 
 
-def _interp_matrix(n_pix: int, n_mesh: int, b: int) -> np.ndarray:
-    """(n_pix, n_mesh) weights interpolating mesh-centre values to pixel centres.
+def _bspline_weights(t: np.ndarray) -> list[np.ndarray]:
+    """Cubic B-spline weights of the four neighbours (offsets -1, 0, 1, 2) at fraction t."""
+    return [(1 - t) ** 3 / 6, (3 * t**3 - 6 * t**2 + 4) / 6, (-3 * t**3 + 3 * t**2 + 3 * t + 1) / 6, t**3 / 6]
 
-    A not-a-knot cubic spline through the mesh centres (continued as a cubic for the half
-    mesh beyond the outer centres); linear for fewer than 4 meshes. Spline interpolation
-    follows a curved glow closely, which bilinear interpolation does not (its error,
-    about curvature x mesh^2 / 8, can exceed the noise of the filtered image).
+
+class _Upsampler:
+    """Cubic spline interpolation from mesh centres to pixel centres, as sparse matrices.
+
+    The mesh grid is first extended by two rows and columns on every side, continued
+    linearly, so that pixels beyond the outer mesh centres are extrapolated smoothly; its
+    cubic B-spline coefficients (``scipy.ndimage.spline_filter``) are then evaluated with
+    the four local B-spline weights per axis. The result interpolates the mesh values
+    exactly and is fourth-order accurate (M. Unser, IEEE Signal Process. Mag. 16(6), 22
+    (1999)).
     """
-    centres = np.arange(n_mesh) * b + (b - 1) / 2.0
-    pix = np.arange(n_pix, dtype=float)
-    if n_mesh == 1:
-        return np.ones((n_pix, 1), dtype=np.float32)
-    if n_mesh < 4:
-        u = np.clip((pix - (b - 1) / 2.0) / b, 0, n_mesh - 1)
-        i0 = np.minimum(np.floor(u).astype(int), n_mesh - 2)
-        f = u - i0
-        m = np.zeros((n_pix, n_mesh))
-        m[np.arange(n_pix), i0] = 1 - f
-        m[np.arange(n_pix), i0 + 1] += f
-        return m.astype(np.float32)
-    from scipy.interpolate import CubicSpline
 
-    spline = CubicSpline(centres, np.eye(n_mesh), bc_type="not-a-knot", extrapolate=True)
-    return spline(pix).astype(np.float32)
+    PAD = 2
+
+    def __init__(self, n_rows: int, n_cols: int, hb: int, wb: int, b: int):
+        self.hb, self.wb = hb, wb
+        self.ry = self._matrix(n_rows, hb, b)
+        self.rx = self._matrix(n_cols, wb, b)
+        self.ry_sub = self.ry[::2]
+        self.rx_sub = self.rx[::2]
+
+    @classmethod
+    def _matrix(cls, n_pix: int, n_mesh: int, b: int):
+        from scipy import sparse
+
+        u = (np.arange(n_pix) - (b - 1) / 2.0) / b + cls.PAD
+        i0 = np.floor(u).astype(int)
+        w = _bspline_weights(u - i0)
+        cols = np.concatenate([np.clip(i0 + d, 0, n_mesh + 2 * cls.PAD - 1) for d in (-1, 0, 1, 2)])
+        rows = np.tile(np.arange(n_pix), 4)
+        return sparse.csr_matrix((np.concatenate(w).astype(np.float32), (rows, cols)),
+                                 shape=(n_pix, n_mesh + 2 * cls.PAD))
+
+    @classmethod
+    def _extend(cls, grid: np.ndarray) -> np.ndarray:
+        g = np.asarray(grid, dtype=np.float64)
+        for axis in (0, 1):
+            g = np.moveaxis(g, axis, 0)
+            if g.shape[0] >= 2:
+                lo = [g[0] + k * (g[0] - g[1]) for k in (cls.PAD, 1)]
+                hi = [g[-1] + k * (g[-1] - g[-2]) for k in (1, cls.PAD)]
+            else:
+                lo, hi = [g[0]] * cls.PAD, [g[-1]] * cls.PAD
+            g = np.moveaxis(np.concatenate([np.stack(lo), g, np.stack(hi)]), 0, axis)
+        return ndi.spline_filter(g, order=3, mode="mirror").astype(np.float32)
+
+    def full(self, grid: np.ndarray) -> np.ndarray:
+        """The grid interpolated to every pixel, (n_rows, n_cols) float32."""
+        g = self._extend(grid)
+        return self.ry @ np.ascontiguousarray((self.rx @ g.T).T)
+
+    def sub(self, grid: np.ndarray) -> np.ndarray:
+        """The grid interpolated to every second row and column."""
+        g = self._extend(grid)
+        return self.ry_sub @ np.ascontiguousarray((self.rx_sub @ g.T).T)
 
 
 def _interp_points(grid: np.ndarray, y: np.ndarray, x: np.ndarray, b: int) -> np.ndarray:
@@ -481,70 +526,60 @@ def _front(
     # mesh statistics use every second row and column
     ok_sub = valid[::2, ::2] & ~sat[::2, ::2] if any_sat else valid[::2, ::2]
 
-    # background, first pass: mesh medians, smoothed by local quadratic regression; meshes
-    # dominated by bright spots (far above the median of their 3 x 3 neighbourhood) left out
+    # background, first pass: mesh medians; meshes dominated by bright spots (far above the
+    # median of their 3 x 3 neighbourhood) take that median, then a 3 x 3 median filter
     img_sub = img[::2, ::2]
     bg0, mad0, w0 = _mesh_stats(img_sub, ok_sub, m)
     usable_mesh = w0 > 0
     if not usable_mesh.any():
         raise InputError("too few usable pixels to estimate the background; check the masks.")
     pix_noise0 = np.maximum(_fill_meshes(_MAD * mad0, usable_mesh), 1e-12)
-    around = ndi.median_filter(_fill_meshes(bg0, usable_mesh), size=3, mode="nearest")
-    w0 = np.where(bg0 - around > 3 * 1.25 * pix_noise0 / m, 0.0, w0)
-    bg0 = _loess_grid(bg0, w0)
+    bg0 = _fill_meshes(bg0, usable_mesh)
+    around = ndi.median_filter(bg0, size=3, mode="nearest")
+    bg0 = _loess_grid(bg0, np.where(bg0 - around > 3 * 1.25 * pix_noise0 / m, 0.0, w0))
     hb, wb = bg0.shape
-    ry = _interp_matrix(hp, hb, b)
-    rx = _interp_matrix(wp, wb, b)
-    background = (ry @ bg0.astype(np.float32)) @ rx.T
+    up = _Upsampler(hp, wp, hb, wb, b)
     all_valid = bool(valid.all())
-    filled = img if all_valid else np.where(valid, img, background)
+    filled = img if all_valid else np.where(valid, img, up.full(bg0))
 
     smooth = ndi.gaussian_filter(filled, sigma)
-    np.subtract(smooth, background, out=smooth)
     # pixels of spots (more than 2.5 robust noise units up in the band-passed image, grown
-    # by one spot width) are left out; the background is measured again without them (a
-    # plane fit per mesh, then smoothed); repeated BACKGROUND_ROUNDS times
+    # by one spot width) are left out; the background is measured again without them: a
+    # plane fit per mesh, smoothed by local quadratic regression, interpolated by cubic
+    # convolution
     floor = 1e-6 * max(1.0, float(np.max(np.abs(bg0))))
+    s_sub = smooth[::2, ::2] - up.sub(bg0)
+    med, mad, wt = _mesh_stats(s_sub, ok_sub, m)
+    wt = wt * usable_mesh
+    zero = _fill_meshes(med, wt > 0) if (wt > 0).any() else np.zeros_like(med)
+    noise = np.maximum(_fill_meshes(_MAD * mad, wt > 0) if (wt > 0).any() else pix_noise0, floor)
+    ok = ok_sub & ~_sources(s_sub, zero, noise, 2.5, sigma, m)
+    plane, wt = _mesh_planes(img_sub, ok & ~sat[::2, ::2] if any_sat else ok, m, b, bg0, pix_noise0)
+    bg = _loess_grid(plane, wt * (np.median(pix_noise0) / pix_noise0) ** 2)
+    background = up.full(bg)
+    np.subtract(smooth, background, out=smooth)  # now the band-passed image
     s_sub = smooth[::2, ::2]
 
-    def zero_level(ok_now, smooth_zero):
+    # the noise of the band-passed image: leave out only clear spots (above the detection
+    # threshold, grown by two spot widths) so that noise peaks do not bias it low; the
+    # standard deviation about the zero level, pooled over 3 x 3 meshes, clipped at 3 sigma
+    def zero_level(ok_now):
         med, mad, wt = _mesh_stats(s_sub, ok_now, m)
         wt = wt * usable_mesh
         if not (wt > 0).any():
             wt = usable_mesh.astype(float)
-        zero = _loess_grid(med, wt) if smooth_zero else _fill_meshes(med, wt > 0)
         guess = np.maximum(_fill_meshes(_MAD * mad, wt > 0), floor)
-        return zero, guess, wt
+        return _fill_meshes(med, wt > 0), guess, wt
 
-    ok = ok_sub
-    bg_prev = bg0
-    for _ in range(BACKGROUND_ROUNDS):
-        s_med, s_noise, _ = zero_level(ok, False)
-        ok = ok_sub & ~_sources(s_sub, s_med, s_noise, 2.5, sigma, m)
-        ok_full = np.repeat(np.repeat(ok, 2, axis=0), 2, axis=1) & valid
-        if any_sat:
-            ok_full &= ~sat
-        plane, wt = _mesh_planes(img, ok_full, b, b, bg0, pix_noise0, step=1)
-        bg = _loess_grid(plane, wt * (np.median(pix_noise0) / pix_noise0) ** 2)
-        change = (ry @ (bg_prev - bg).astype(np.float32)) @ rx.T
-        smooth += change  # now the filtered image minus the new background
-        background -= change
-        bg_prev = bg
-    # the noise of the band-passed image: leave out only clear spots (above the detection
-    # threshold, grown by two spot widths) so that noise peaks do not bias it low; the
-    # standard deviation about the zero level, pooled over 3 x 3 meshes, clipped at 3 sigma
-    s_med, s_noise, wt = zero_level(ok, False)
+    s_med, s_noise, wt = zero_level(ok)
     ok = ok_sub & ~_sources(s_sub, s_med, s_noise, max(threshold, 4.0), 2 * sigma, m)
-    s_med, raw_noise, wt = zero_level(ok, True)
-    dev = s_sub - (ry[::2] @ s_med.astype(np.float32)) @ rx[::2].T
+    s_med, raw_noise, wt = zero_level(ok)
+    s_med = _loess_grid(s_med, wt)
+    dev = s_sub - up.sub(s_med)
     for _ in range(2):
         raw_noise = _pooled_noise(dev, ok, raw_noise, m)
         raw_noise = np.maximum(_fill_meshes(raw_noise, np.isfinite(raw_noise) & (wt > 0)), floor)
-    # smooth the noise map a little (normalised Gaussian convolution over meshes)
-    num = ndi.gaussian_filter(raw_noise * (wt > 0), 1.0, mode="constant")
-    den = ndi.gaussian_filter((wt > 0).astype(float), 1.0, mode="constant")
-    s_noise = np.where(den > 1e-6, num / np.maximum(den, 1e-6), raw_noise)
-    bg = bg_prev
+    s_noise = _smooth_meshes(raw_noise, (wt > 0).astype(float))
 
     # candidates: above a conservative piecewise-constant threshold, then exact test
     thr = ndi.minimum_filter(s_med + 0.9 * threshold * s_noise, size=3, mode="nearest").astype(np.float32)
@@ -870,6 +905,11 @@ def _estimate_sigma(data, usable, sat, max_spots: int, depth: int = 0) -> float 
     x, y = px.copy(), py.copy()
     for _ in range(10):
         p = _patches(data, usable, sat, None, rows, cols, int(math.ceil(ANNULUS[1] * ws)) + 1, (h, w))
+        # subtract the provisional background (a block-sum image: divide by f^2), so that a
+        # curved glow under the spot does not widen it; then the annulus median offset
+        yy = np.broadcast_to((p.Y - (f - 1) / 2) / f, p.values.shape)
+        xx = np.broadcast_to((p.X - (f - 1) / 2) / f, p.values.shape)
+        p.values = p.values - ndi.map_coordinates(front.background, [yy, xx], order=1, mode="nearest") / f**2
         bg, _, _ = _ring_stats(p, x, y, ANNULUS[0] * ws, ANNULUS[1] * ws)
         d = p.values - bg[:, None, None]
         x, y, _ = _weighted_centroid(p, d, x, y, ws, iterations=10)
