@@ -173,6 +173,20 @@ def test_model_file_or_crystal_not_both(tmp_path, capsys):
     assert "not both" in err
 
 
+def test_model_file_refuses_a_vacuum_it_would_ignore(tmp_path, capsys):
+    # Regression: --vacuum had the default 10, so a --vacuum given with a MODEL file could not be
+    # told from the default and was silently ignored (the model's own vacuum was used).
+    from pathlib import Path
+
+    model = Path(__file__).resolve().parent.parent / "structures" / "pt111_o_p2x2.toml"
+    out = tmp_path / "m.extxyz"
+    code, _, err = _run(capsys, "build", str(model), "-o", str(out), "--vacuum", "20")
+    assert code == 2
+    _one_sentence(err)
+    assert "--vacuum cannot be combined with a MODEL file" in err
+    assert os.listdir(tmp_path) == []
+
+
 def test_model_file_builds_when_supported(tmp_path, capsys):
     pytest.importorskip("surfgeo.slab.model")
     from pathlib import Path

@@ -68,7 +68,7 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
                    help='step notation of a stepped face instead of --miller, e.g. "4(111)x(100)"')
     f.add_argument("--layers", type=int, default=None,
                    help="number of atomic layers (default 4; 12 with --steps)")
-    f.add_argument("--vacuum", type=float, default=10.0,
+    f.add_argument("--vacuum", type=float, default=None,
                    help="vacuum gap in Angstrom along the normal (default 10; 0 for a bulk-periodic cell)")
     f.add_argument("--size", nargs=2, type=int, default=(1, 1), metavar=("N1", "N2"),
                    help="in-plane repetitions of the cell (default 1 1)")
@@ -148,9 +148,10 @@ def build_from_args(args):
         clash = [opt for opt, val in (
             ("--miller", args.miller), ("--steps", args.steps), ("--structure", args.structure),
             ("--a", args.a), ("--c", args.c), ("--species", args.species), ("--charges", args.charges),
-            ("--layers", args.layers), ("--termination", args.termination),
-            ("--rectangular", args.rectangular), ("--orthogonal", args.orthogonal),
-            ("--symmetric", args.symmetric), ("--size", tuple(args.size) != (1, 1)),
+            ("--layers", args.layers), ("--vacuum", args.vacuum is not None),
+            ("--termination", args.termination), ("--rectangular", args.rectangular),
+            ("--orthogonal", args.orthogonal), ("--symmetric", args.symmetric),
+            ("--size", tuple(args.size) != (1, 1)),
         ) if val]
         if clash:
             raise InputError(
@@ -171,20 +172,21 @@ def build_from_args(args):
         if bool(args.miller) == bool(args.steps):
             raise InputError("give the face either as --miller H K L or as --steps NOTATION (one of them).")
         species = [s.strip() for s in args.species.split(",")] if args.species else None
+        vacuum = 10.0 if args.vacuum is None else args.vacuum
         bulk = bulk_crystal(args.crystal, args.structure, a=args.a, c=args.c, species=species)
         if args.steps:
             if args.rectangular or args.symmetric or args.termination:
                 raise InputError("--steps builds a cell along the step edge; it takes no --rectangular, "
                                  "--symmetric or --termination.")
             atoms = stepped_slab(
-                bulk, args.steps, layers=12 if args.layers is None else args.layers, vacuum=args.vacuum,
+                bulk, args.steps, layers=12 if args.layers is None else args.layers, vacuum=vacuum,
                 size=tuple(args.size), orthogonal=args.orthogonal,
             )
         else:
             if len(args.miller) not in (3, 4):
                 raise InputError(f"--miller takes 3 indices (H K L) or 4 (H K I L), got {len(args.miller)}.")
             atoms = surface_slab(
-                bulk, args.miller, layers=4 if args.layers is None else args.layers, vacuum=args.vacuum,
+                bulk, args.miller, layers=4 if args.layers is None else args.layers, vacuum=vacuum,
                 orthogonal=args.orthogonal, rectangular=args.rectangular, symmetric=args.symmetric,
                 termination=args.termination, size=tuple(args.size), charges=_charges(args.charges),
             )
