@@ -157,6 +157,35 @@ def test_relaxations_wrong_system_leaves_nothing(files, capsys):
     assert "not the same system" in capsys.readouterr().err
 
 
+@pytest.mark.parametrize("extra, phrase", [
+    (["--layer-tol", "-1"], "layer tolerance must be a positive height"),
+    (["--layer-tol", "0"], "layer tolerance must be a positive height"),
+    (["--max-shift", "-1"], "largest allowed displacement must be a positive distance"),
+])
+def test_relaxations_bad_tolerances_are_user_errors(files, capsys, extra, phrase):
+    # Regression: --layer-tol -1 ended in an internal error (ZeroDivisionError, exit 1) and a
+    # negative --max-shift was accepted and then quoted as "more than the -1 A allowed".
+    js = files / "r.json"
+    assert main(["relaxations", str(files / "CONTCAR"), "--reference", str(files / "ref.extxyz"),
+                 "--json", str(js), *extra]) == 2
+    err = capsys.readouterr().err
+    _one_sentence_error(err)
+    assert phrase in err
+    assert not js.exists()
+
+
+def test_export_negative_layer_tolerance_is_refused(files, capsys):
+    # Regression: --layer-tol -1 put every atom in a layer of its own, so --fix-bottom 1 quietly
+    # fixed a single atom instead of the bottom layer.
+    out = files / "OUT.vasp"
+    argv = ["export", str(files / "ref.extxyz"), str(out), "--fix-bottom", "1", "--layer-tol", "-1"]
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    _one_sentence_error(err)
+    assert "layer tolerance must be a positive height" in err
+    assert not list(files.glob("OUT*"))
+
+
 def test_relaxations_unreadable_and_missing_files(files, capsys):
     (files / "notes.txt").write_text("this is not a structure\n")
     assert main(["relaxations", str(files / "notes.txt"), "--reference", str(files / "ref.extxyz")]) == 2

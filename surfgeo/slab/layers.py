@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
+
+from surfgeo.errors import InputError
 
 #: Default height tolerance (Angstrom): atoms closer than this in z share a layer.
 LAYER_TOL = 0.3
@@ -20,18 +24,27 @@ def group_layers(heights, tol: float = LAYER_TOL) -> list[np.ndarray]:
     heights : array_like, shape (N,) or (N, 3)
         z coordinates in Angstrom, or Cartesian positions (the last column is used).
     tol : float
-        Largest height gap (Angstrom) inside one layer.
+        Largest height gap (Angstrom) inside one layer; positive.
 
     Returns
     -------
     list of ndarray of int
         Atom indices of each layer, from the bottom layer to the top layer.
 
+    Raises
+    ------
+    InputError
+        If ``tol`` is not a positive finite height.
+
     Examples
     --------
     >>> [l.tolist() for l in group_layers([0.0, 2.0, 0.05, 2.1])]
     [[0, 2], [1, 3]]
     """
+    if not (isinstance(tol, (int, float, np.integer, np.floating)) and math.isfinite(tol) and tol > 0):
+        raise InputError(
+            f"the layer tolerance must be a positive height in Angstrom (such as 0.3), got {tol}."
+        )
     z = np.asarray(heights, dtype=float)
     if z.ndim == 2:
         z = z[:, -1]

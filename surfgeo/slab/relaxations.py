@@ -655,6 +655,11 @@ def analyse_relaxation(reference, relaxed, *, method: str = "auto", adsorbates=N
     """
     from surfgeo.slab.constraints import default_layer_tol, fixed_mask
 
+    if not (np.isfinite(max_displacement) and max_displacement > 0):
+        raise InputError(
+            "the largest allowed displacement must be a positive distance in Angstrom, "
+            f"got {max_displacement}."
+        )
     match = match_atoms(reference, relaxed, method, cell_tol)
     d = match.displacements
     n = len(reference)
