@@ -123,6 +123,20 @@ def test_espresso_input_has_the_mesh_and_placeholders(tmp_path):
     assert "Pt.pbe.UPF" in text and "to-choose" not in text
 
 
+def test_pseudopotentials_for_absent_species_or_other_formats_are_refused(tmp_path):
+    # Regression: --pseudo Au=Au.UPF for a Pt slab was silently ignored (and, being non-empty,
+    # suppressed the caution about the Pt placeholder); --pseudo with a POSCAR was ignored too.
+    slab = pt_with_oxygen()
+    with pytest.raises(InputError, match="which the slab does not contain"):
+        export_slab(slab, tmp_path / "a.pwi", pseudopotentials={"Au": "Au.UPF"})
+    with pytest.raises(InputError, match="only into a pw.x input"):
+        export_slab(slab, tmp_path / "POSCAR", pseudopotentials={"Pt": "Pt.UPF"})
+    assert list(tmp_path.iterdir()) == []
+    note = export_slab(slab, tmp_path / "b.pwi", pseudopotentials={"Pt": "Pt.pbe.UPF"})
+    assert any("placeholder pseudopotential files for O;" in c for c in note["caution"])
+    assert "O.pseudopotential-to-choose.UPF" in (tmp_path / "b.pwi").read_text()
+
+
 def test_comments_where_the_format_allows(tmp_path):
     slab = pt_with_oxygen()
     for name in ("POSCAR", "geometry.in", "s.cif"):

@@ -339,6 +339,18 @@ def write_dft_input(path: str | os.PathLike, atoms, note: dict, fmt: str | None 
     npath = note_path(target)
     if write_note:
         check_writable(npath, force)
+    present = list(dict.fromkeys(atoms.get_chemical_symbols()))
+    if pseudopotentials and f.name != "espresso":
+        raise InputError(
+            f"pseudopotential files are written only into a pw.x input (espresso), not into {f.name}; "
+            "leave them out or export to a .pwi file."
+        )
+    unknown = sorted(set(pseudopotentials or {}) - set(present))
+    if unknown:
+        raise InputError(
+            f"pseudopotentials were given for {', '.join(unknown)}, which the slab does not contain; "
+            f"its species are {', '.join(present)}."
+        )
     out = atoms.copy()
     order = np.arange(len(out))
     if f.name == "vasp":
@@ -359,9 +371,11 @@ def write_dft_input(path: str | os.PathLike, atoms, note: dict, fmt: str | None 
             f"the {f.name} format cannot hold fixed atoms; fix them in the code's own input "
             "(see 'constraints')."
         )
-    if f.name == "espresso" and not pseudopotentials:
+    missing = [sp for sp in present if sp not in (pseudopotentials or {})]
+    if f.name == "espresso" and missing:
         note.setdefault("caution", []).append(
-            "the pw.x input names placeholder pseudopotential files; replace them, and set ecutwfc."
+            f"the pw.x input names placeholder pseudopotential files for {', '.join(missing)}; replace "
+            "them, and set ecutwfc."
         )
     with atomic_output(target, force) as tmp:
         _write_with_ase(tmp, out, f, note, pseudopotentials)
