@@ -111,3 +111,11 @@ def test_default_spacing_and_bad_input():
             kpoint_mesh(_cell(3.0, 3.0, 90.0), bad)
     with pytest.raises(StructureError, match="parallel"):
         kpoint_mesh(np.array([[1.0, 0, 0], [2.0, 0, 0], [0, 0, 10]]), 0.2)
+
+
+def test_absurdly_dense_meshes_are_refused():
+    # Regression: a spacing of 1e-6 1/A gave a 1308725 x 1308725 x 1 mesh without a word.
+    cell = _cell(3.0, 3.0, 90.0)  # |b| = 2 pi / 3 = 2.09 1/A
+    with pytest.raises(InputError, match="more than 1000 points"):
+        kpoint_mesh(cell, 1e-6)
+    assert kpoint_mesh(cell, 2.0 * math.pi / 3.0 / 999.5).mesh == (1000, 1000, 1)

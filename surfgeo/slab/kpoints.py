@@ -28,6 +28,10 @@ from surfgeo.errors import InputError, StructureError
 #: before a convergence test.
 DEFAULT_KSPACING = 0.25
 
+#: Largest number of k-points along one reciprocal vector that a spacing may ask for; a
+#: denser mesh means a spacing typed in the wrong units (or a slip of the finger).
+MAX_KPOINTS_PER_AXIS = 1000
+
 
 @dataclass(frozen=True)
 class KPointMesh:
@@ -121,7 +125,14 @@ def kpoint_mesh(cell, spacing: float = DEFAULT_KSPACING) -> KPointMesh:
         raise InputError(f"the k-point spacing must be a positive number in 1/Angstrom, got {spacing!r}.")
     b = surface_reciprocal(cell)
     lengths = np.linalg.norm(b, axis=1)
-    n = np.maximum(1, np.ceil(lengths / s)).astype(int)
+    ratio = lengths / s
+    if np.any(ratio > MAX_KPOINTS_PER_AXIS):
+        raise InputError(
+            f"the k-point spacing {s:g} 1/Angstrom asks for more than {MAX_KPOINTS_PER_AXIS} points along "
+            f"a reciprocal vector of {lengths.max():.3f} 1/Angstrom; give a spacing such as 0.1 to 0.3 "
+            "(2 pi included)."
+        )
+    n = np.maximum(1, np.ceil(ratio)).astype(int)
     return KPointMesh(
         mesh=(int(n[0]), int(n[1]), 1),
         spacing=s,
@@ -130,4 +141,4 @@ def kpoint_mesh(cell, spacing: float = DEFAULT_KSPACING) -> KPointMesh:
     )
 
 
-__all__ = ["DEFAULT_KSPACING", "KPointMesh", "kpoint_mesh", "surface_reciprocal"]
+__all__ = ["DEFAULT_KSPACING", "MAX_KPOINTS_PER_AXIS", "KPointMesh", "kpoint_mesh", "surface_reciprocal"]
