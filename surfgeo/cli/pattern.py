@@ -37,6 +37,25 @@ incidence is not a prediction: multiple scattering lifts it.
 Only beams within the acceptance of the screen (--theta-max, default the screen's own, 55
 degrees) are listed; --theta-max 90 lists every emerging beam.
 
+Relaxed against ideal (--reference IDEAL): MODEL is the relaxed structure (any file ASE
+reads, e.g. a CONTCAR; last frame of a trajectory unless --frame) and IDEAL the structure it
+started from (model file or structure file; its surfgeo record gives the surface cell). The
+atoms are matched (by index, or by minimum distance under periodic boundaries) and refused
+when they are not the same system; both patterns use the same beams, energy, incidence,
+domains and kinematic settings, with intensities in the same units. The text lists every
+beam with I_relaxed, I_ideal, their ratio and relative change, then the beams that changed
+most (ranked by |ln ratio|; beams extinct in one structure only first). The JSON gains a
+"reference" block: matching {method, max_displacement_A, max_displacement_atom,
+rms_displacement_A, note}, domains (of the ideal structure), beams (in the order of the
+top-level beams: hk, intensity, extinct, ratio, relative_change, status = appears |
+vanishes | extinct in both | ""), largest_changes (groups of equivalent beams: beams, ratio,
+relative_change, status) and notes. Over an energy range, reference.beams hold per beam
+intensity (list over the energies), mean_ratio, correlation (Pearson, of the two I(V)
+curves), peak_eV_relaxed, peak_eV_ideal, and reference.strongest the --top strongest groups.
+--plot draws split spots (left half ideal, right half relaxed) and the changes as bars, or
+over an energy range the I(V) curves of the strongest beams. --csv gains the columns
+intensity_reference and ratio. Kinematic intensity changes are qualitative for LEED.
+
 examples:
   surfgeo pattern --lattice hex:2.77 --wood "(2x1)" --energy 80 --plot p2x1.png
       the three (2x1) domains on a hexagonal substrate at 80 eV, with a spot map in k-space
@@ -48,6 +67,13 @@ examples:
   surfgeo pattern --lattice square:2.55 --matrix 2 0 0 1 --energy 40:300:2 \\
       --screen camera:dist=3,size=640x480 --plot paths.png --animate sweep.gif
       an energy sweep: onset energy of every beam, spot trajectories and a GIF animation
+
+  surfgeo pattern CONTCAR --reference cu100.extxyz --energy 120 --json cmp.json --plot cmp.png
+      the relaxed slab from a DFT run next to the ideal slab written by 'surfgeo build':
+      intensity ratios per beam, the largest changes, split-spot map and bar chart
+
+  surfgeo pattern CONTCAR --reference cu100.extxyz --energy 40:300:1 --plot iv.png --top 6
+      kinematic I(V) curves of the 6 strongest (groups of equivalent) beams, relaxed and ideal
 """
 
 
@@ -123,6 +149,35 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         help="panels of the spot-map figure (default both)",
     )
     p.add_argument("--animate", metavar="FILE.gif", help="energy sweeps: write a GIF animation of the screen")
+    g = p.add_argument_group("relaxed against ideal")
+    g.add_argument(
+        "--reference",
+        metavar="IDEAL",
+        help="the ideal structure (model or structure file) to compare with; MODEL is then the relaxed one",
+    )
+    g.add_argument(
+        "--frame", default="-1", metavar="N", help="frame of MODEL in a trajectory (default: last; 0 = first)"
+    )
+    g.add_argument(
+        "--match",
+        choices=("auto", "index", "distance"),
+        default="auto",
+        help="how to pair the atoms of MODEL and IDEAL: auto (default), index (file order) or distance",
+    )
+    g.add_argument(
+        "--max-shift",
+        type=float,
+        default=2.0,
+        metavar="D",
+        help="refuse when an atom moved more than D Angstrom between IDEAL and MODEL (default 2.0)",
+    )
+    g.add_argument(
+        "--top",
+        type=int,
+        default=8,
+        metavar="N",
+        help="groups of equivalent beams in the table of largest changes, or I(V) curves shown (default 8)",
+    )
     p.set_defaults(func=run)
 
 
@@ -202,6 +257,9 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--animate needs an energy range such as --energy 40:300:2.")
     _check_outputs(args)
 
+    if args.reference is not None:
+        return _run_reference(args, energies, incidence, weights, screen, theta_max, sweep)
+
     atoms = None
     lattice = matrix = None
     if args.model:
@@ -211,13 +269,8 @@ def run(args: argparse.Namespace) -> int:
             raise InputError("--double-order applies to overlayers given with --lattice and --matrix/--wood.")
         from surfgeo.io.structures import read_structure
 
-        atoms = read_structure(args.model)
-        if "surfgeo" not in atoms.info:
-            print(
-                f"surfgeo pattern: note: {args.model} has no surfgeo surface record; its cell is taken "
-                "as the 1x1 surface cell.",
-                file=sys.stderr,
-            )
+        atoms = read_structure(args.model, args.frame)
+        _note_record(atoms, args.model)
     else:
         if not args.lattice:
             raise InputError("give a MODEL file, or the substrate with --lattice (and --matrix or --wood).")
@@ -286,6 +339,81 @@ def run(args: argparse.Namespace) -> int:
                 spotmap.plot_pattern(result, args.plot, screen, args.force, view=args.view)
         if args.animate:
             spotmap.animate_sweep(result, screen, args.animate, args.force)
+    return 0
+
+
+def _note_record(atoms, name) -> None:
+    if "surfgeo" not in atoms.info:
+        print(
+            f"surfgeo pattern: note: {name} has no surfgeo surface record; its cell is taken "
+            "as the 1x1 surface cell.",
+            file=sys.stderr,
+        )
+
+
+def _run_reference(args, energies, incidence, weights, screen, theta_max, sweep: bool) -> int:
+    """``--reference``: the relaxed structure MODEL against its ideal reference."""
+    from surfgeo.errors import InputError
+    from surfgeo.io.structures import read_structure
+
+    if not args.model:
+        raise InputError("--reference needs the relaxed structure as MODEL, e.g. 'surfgeo pattern CONTCAR "
+                         "--reference ideal.extxyz --energy 100'.")
+    if args.lattice or args.matrix is not None or args.wood is not None:
+        raise InputError("--reference compares two structure files; leave out --lattice, --matrix, --wood.")
+    if args.double_order:
+        raise InputError("--double-order applies to overlayers given with --lattice and --matrix/--wood.")
+    if args.top < 1:
+        raise InputError(f"--top must be 1 or more, got {args.top}.")
+    if not (math.isfinite(args.max_shift) and args.max_shift > 0):
+        raise InputError(f"--max-shift must be a positive length in Angstrom, got {args.max_shift:g}.")
+    relaxed = read_structure(args.model, args.frame)
+    reference = read_structure(args.reference)
+    _note_record(reference, args.reference)
+    opts = {
+        "domains": not args.no_domains,
+        "weights": weights,
+        "theta_max": theta_max,
+        "match": args.match,
+        "max_displacement": args.max_shift,
+        "inner_potential": args.inner_potential,
+        "temperature": args.temperature,
+    }
+    names = (str(args.model), str(args.reference))
+    if sweep:
+        from surfgeo.diffraction.pattern import compare_slab_sweeps
+
+        comp = compare_slab_sweeps(relaxed, reference, energies, incidence, **opts)
+        text = sweep_comparison_report(comp, screen, names, args.top)
+    else:
+        from surfgeo.diffraction.pattern import compare_slab_patterns
+
+        comp = compare_slab_patterns(relaxed, reference, float(energies[0]), incidence, **opts)
+        text = comparison_report(comp, screen, names, args.top)
+    if args.json != "-":
+        sys.stdout.write(text)
+    if args.json:
+        from surfgeo.io import dump_json
+
+        data = comp.to_dict(screen, top=args.top)
+        data["reference"] = {"file": names[1], "relaxed_file": names[0], **data["reference"]}
+        dump_json(data, args.json, args.force)
+    if args.csv:
+        from surfgeo.io import write_text
+
+        write_text(args.csv, comparison_csv(comp, screen), args.force)
+    if args.plot or args.animate:
+        from surfgeo.plot import spotmap
+
+        if args.plot:
+            if sweep:
+                spotmap.plot_iv_comparison(comp, args.plot, args.force, top=args.top, names=names)
+            else:
+                spotmap.plot_comparison(
+                    comp, args.plot, screen, args.force, view=args.view, top=args.top, names=names
+                )
+        if args.animate:
+            spotmap.animate_sweep(comp.relaxed, screen, args.animate, args.force)
     return 0
 
 
@@ -440,6 +568,12 @@ def _csv_rows(rows, px, vis) -> str:
 
 def sweep_report(sweep, screen) -> str:
     """The text report of an energy sweep: onset energy of every beam."""
+    lines = _sweep_lines(sweep, screen)
+    lines += [f"note: {n}" for n in sweep.base.notes]
+    return "\n".join(lines) + "\n"
+
+
+def _sweep_lines(sweep, screen) -> list[str]:
     from surfgeo.diffraction.beams import format_index
 
     base = sweep.base
@@ -467,8 +601,7 @@ def sweep_report(sweep, screen) -> str:
     lines.append(
         "Positions versus energy: --csv FILE or --json FILE; trajectories: --plot; animation: --animate."
     )
-    lines += [f"note: {n}" for n in base.notes]
-    return "\n".join(lines) + "\n"
+    return lines
 
 
 def sweep_csv(sweep, screen) -> str:
@@ -498,3 +631,146 @@ def sweep_csv(sweep, screen) -> str:
             pxs.append(px[f, j])
             viss.append(vis[f, j])
     return _csv_rows(rows, pxs, viss)
+
+
+# ----------------------------------------------------------------------------- relaxed against ideal
+def _labels(hk, idx) -> str:
+    from surfgeo.diffraction.beams import format_index
+
+    return " ".join(f"({format_index(hk[i][0])},{format_index(hk[i][1])})" for i in idx)
+
+
+def _ratio_text(r: float, width: int = 8) -> str:
+    if math.isnan(r):
+        return "-".rjust(width)
+    if math.isinf(r):
+        return "inf".rjust(width)
+    return f"{r:{width}.4g}"
+
+
+def _change_text(r: float, width: int = 9) -> str:
+    if math.isnan(r):
+        return "-".rjust(width)
+    if math.isinf(r):
+        return "new".rjust(width)
+    return f"{100.0 * (r - 1.0):+{width - 1}.1f}%"
+
+
+def _match_lines(matching: dict, names) -> list[str]:
+    return [
+        f"relaxed     {names[0]}",
+        f"reference   {names[1]} (ideal)",
+        f"matching    by {matching['method']}; largest displacement {matching['max_displacement_A']:.3f} A "
+        f"(atom {matching['max_displacement_atom']} of the reference), "
+        f"rms {matching['rms_displacement_A']:.3f} A",
+    ]
+
+
+def comparison_report(comp, screen, names=("relaxed", "ideal"), top: int = 8) -> str:
+    """Text report of a relaxed structure against its ideal reference at one energy."""
+    from surfgeo.diffraction.beams import format_index
+
+    rel, ideal = comp.relaxed, comp.ideal
+    px, vis = rel.screen_positions(screen)
+    nd = len(rel.domain_records)
+    ratio = comp.ratio
+    status = comp.status
+    lines = _match_lines(comp.matching, names) + _header(rel, screen, f"{rel.energy:g} eV")
+    lines.append(
+        f"beams       {len(rel)} within {rel.theta_max:g} deg of the screen axis "
+        f"({int(np.sum(vis)) if len(rel) else 0} visible)"
+    )
+    lines.append("")
+    lines.append(
+        f"{'h':>6} {'k':>6}  {'order':<10} {'theta':>6} {'phi':>6} {'domains':<8} {'I_relaxed':>10} "
+        f"{'I_ideal':>10} {'ratio':>8} {'change':>9} {'x':>7} {'y':>7}"
+    )
+
+    def inten(p, i):
+        return "extinct".rjust(10) if p.extinct[i] else f"{p.intensity[i]:10.4g}"
+
+    for i, (h, k) in enumerate(rel.hk):
+        row = (
+            f"{format_index(h):>6} {format_index(k):>6}  {rel.order[i]:<10} {_fmt(rel.theta[i], 6, 1)} "
+            f"{_fmt(rel.phi[i], 6, 1)} {_domain_text(rel.domains[i], nd):<8} {inten(rel, i)} "
+            f"{inten(ideal, i)} "
+            f"{_ratio_text(ratio[i])} {_change_text(ratio[i])} {_fmt(px[i, 0], 7, 1)} {_fmt(px[i, 1], 7, 1)}"
+        )
+        if status[i]:
+            row += f"  ({status[i]})"
+        elif not vis[i]:
+            row += "  (shadow)"
+        lines.append(row)
+    lines.append("")
+    groups = comp.change_groups(top)
+    top_r = float(np.nanmax(rel.intensity)) if len(rel) else 0.0
+    lines.append(
+        f"largest changes, relaxed against ideal ({len(groups)} groups of equivalent beams, ranked by "
+        "|ln ratio|; beams extinct in one structure only first):"
+    )
+    lines.append(f"{'ratio':>8} {'change':>9} {'% of max':>9}  beams")
+    for g in groups:
+        i = g[0]
+        share = 100.0 * rel.intensity[i] / top_r if top_r > 0 else float("nan")
+        extra = f"  ({status[i]})" if status[i] else ""
+        lines.append(
+            f"{_ratio_text(ratio[i])} {_change_text(ratio[i])} {share:9.3g}  {_labels(rel.hk, g)}{extra}"
+        )
+    if not groups:
+        lines.append("  (none: every beam is extinct in both structures)")
+    lines.append("")
+    lines.append("'% of max': the beam's relaxed intensity in % of the strongest relaxed beam.")
+    lines += [f"note: {n}" for n in [*comp.notes, *rel.notes]]
+    return "\n".join(lines) + "\n"
+
+
+def sweep_comparison_report(comp, screen, names=("relaxed", "ideal"), top: int = 8) -> str:
+    """Text report of the I(V) curves of a relaxed structure against its ideal reference."""
+    rel = comp.relaxed
+    lines = _match_lines(comp.matching, names) + _sweep_lines(rel, screen)
+    lines.append("")
+    groups = comp.strongest(top)
+    mr, mi, ratio = comp.mean_relaxed, comp.mean_ideal, comp.mean_ratio
+    corr = comp.correlation()
+    pr, pi = comp.peak_energies()
+    lines.append(
+        f"kinematic I(V) curves of the {len(groups)} strongest groups of equivalent beams, relaxed against "
+        "ideal (means over the energies where the beam emerges; corr: Pearson correlation of the curves):"
+    )
+    lines.append(
+        f"{'mean_relaxed':>12} {'mean_ideal':>11} {'ratio':>8} {'corr':>6} {'peak_eV_rel':>11} "
+        f"{'peak_eV_ideal':>13}  beams"
+    )
+    for g in groups:
+        j = g[0]
+        lines.append(
+            f"{mr[j]:12.4g} {mi[j]:11.4g} {_ratio_text(ratio[j])} {_fmt(float(corr[j]), 6, 3)} "
+            f"{_fmt(float(pr[j]), 11, 1)} {_fmt(float(pi[j]), 13, 1)}  {_labels(rel.hk, g)}"
+        )
+    lines.append("")
+    lines += [f"note: {n}" for n in [*comp.notes, *rel.base.notes]]
+    return "\n".join(lines) + "\n"
+
+
+def comparison_csv(comp, screen) -> str:
+    """CSV of the relaxed structure (columns of :func:`pattern_csv`) with ``intensity_reference``
+    (the ideal structure) and ``ratio`` (relaxed over ideal; empty where undefined)."""
+    from surfgeo.diffraction.pattern import PatternComparison, intensity_ratio
+
+    def fmt(x):
+        return "" if not np.isfinite(x) and not np.isinf(x) else ("inf" if np.isinf(x) else f"{x:.6g}")
+
+    if isinstance(comp, PatternComparison):
+        base = pattern_csv(comp.relaxed, screen)
+        ref = comp.ideal.intensity
+        ratio = comp.ratio
+    else:
+        base = sweep_csv(comp.relaxed, screen)
+        emerges = np.isfinite(comp.relaxed.theta)
+        ref = comp.ideal.intensity[emerges]  # row-major over (energy, beam), as sweep_csv
+        ratio = intensity_ratio(comp.relaxed.intensity, comp.ideal.intensity)[emerges]
+    lines = base.rstrip("\n").split("\n")
+    out = [lines[0] + ",intensity_reference,ratio"]
+    for row, r_i, q in zip(lines[1:], ref, ratio, strict=True):
+        out.append(f"{row},{fmt(r_i)},{fmt(q)}")
+    return "\n".join(out) + "\n"

@@ -7,6 +7,11 @@ Two sources of beams:
 * a slab (``ase.Atoms`` with the ``atoms.info["surfgeo"]`` record) or a model file gives
   positions and kinematic intensities (:func:`slab_pattern`).
 
+A relaxed structure (from a DFT code, say) is compared with its ideal reference by
+:func:`compare_slab_patterns` (one energy) and :func:`compare_slab_sweeps` (I(V) curves): the
+atoms are matched (:func:`align_to_reference`), and both patterns use the same beams, energy,
+incidence, domains and kinematic settings.
+
 Symmetry domains (rotated and mirrored copies of the superstructure that the substrate allows)
 are superposed incoherently: ``I(g) = sum_d w_d I_d(g)``, equal weights ``w_d`` by default.
 Every beam lists the domains that produce it.
@@ -845,3 +850,479 @@ def _add_intensities(pat: Pattern, atoms, reps, **kinematic) -> None:
     w = np.array([r.weight for r in pat.domain_records])
     pat.domain_intensity = dom_int
     pat.intensity = dom_int @ w
+
+
+# =============================================================================== relaxed versus ideal
+#: The note printed with every comparison of a relaxed and an ideal structure.
+COMPARISON_NOTE = (
+    "Relaxed and ideal structure share the beams, energy, incidence, domains and kinematic settings; "
+    "their intensities are in the same units (no rescaling). Kinematic intensity changes are "
+    "qualitative for LEED: multiple scattering changes real intensities differently."
+)
+
+#: Status of a beam in a comparison: extinct (kinematically) in one structure only, or in both.
+APPEARS, VANISHES, BOTH_EXTINCT = "appears", "vanishes", "extinct in both"
+
+
+def align_to_reference(relaxed, reference, *, method: str = "auto", max_displacement: float | None = None,
+                       cell_tol: float | None = None):
+    """The relaxed structure in the frame, atom order and surface record of its reference.
+
+    The atoms are matched with :func:`surfgeo.slab.relaxations.match_atoms` (by index when
+    the file kept the order, otherwise by a minimum-distance assignment under periodic
+    boundaries), which refuses structures that are not the same system (atom count, species,
+    surface cell). Each reference atom is then moved by its minimum-image displacement, so
+    that the relaxed copy has the reference's cell, order and ``info["surfgeo"]`` record
+    (surface cell, supercell matrix, steps): both structures then give the same beams.
+
+    Parameters
+    ----------
+    relaxed, reference : ase.Atoms
+        The relaxed structure (any order, possibly wrapped or in a rotated frame) and the
+        ideal one it started from.
+    method : {"auto", "index", "distance"}
+        How to pair the atoms (see :func:`~surfgeo.slab.relaxations.match_atoms`).
+    max_displacement : float, optional
+        Refuse when an atom moved further than this (Angstrom); default
+        :data:`surfgeo.slab.relaxations.MAX_DISPLACEMENT`.
+    cell_tol : float, optional
+        Tolerance (Angstrom) on the lengths of the in-plane cell vectors.
+
+    Returns
+    -------
+    aligned : ase.Atoms
+        A copy of ``reference`` with the relaxed positions (Angstrom).
+    matching : dict
+        ``method`` (index or distance), ``max_displacement_A``, ``max_displacement_atom``
+        (index in the reference), ``rms_displacement_A`` and ``note``.
+
+    Raises
+    ------
+    StructureError
+        Not the same system, or an atom moved further than ``max_displacement``.
+    """
+    from surfgeo.slab.relaxations import CELL_TOL, MAX_DISPLACEMENT, SurfaceFrame, match_atoms
+
+    limit = MAX_DISPLACEMENT if max_displacement is None else float(max_displacement)
+    if not (math.isfinite(limit) and limit > 0):
+        raise InputError(f"the largest allowed displacement must be a positive length in Angstrom, got "
+                         f"{max_displacement!r}.")
+    m = match_atoms(reference, relaxed, method, CELL_TOL if cell_tol is None else float(cell_tol))
+    d = m.displacements
+    norms = np.linalg.norm(d, axis=1)
+    worst = int(np.argmax(norms))
+    if norms[worst] > limit:
+        raise StructureError(
+            f"atom {worst} ({reference[worst].symbol}) of the reference moved {norms[worst]:.2f} A in the "
+            f"relaxed structure, more than the {limit:g} A allowed; they are probably not the same system "
+            "(raise the limit if the surface really changed that much)."
+        )
+    axes = SurfaceFrame.of(reference.cell).axes
+    aligned = reference.copy()
+    aligned.positions = reference.get_positions() + d @ axes
+    matching = {
+        "method": m.method,
+        "max_displacement_A": float(norms[worst]),
+        "max_displacement_atom": worst,
+        "rms_displacement_A": float(np.sqrt(np.mean(norms**2))),
+        "note": m.note,
+    }
+    return aligned, matching
+
+
+def _domain_notes(ideal_records, relaxed_records) -> list[str]:
+    a = [(round(r.weight, 9), r.structures) for r in ideal_records]
+    b = [(round(r.weight, 9), r.structures) for r in relaxed_records]
+    if a == b:
+        return []
+    return [
+        "The relaxed structure has other structural domains or domain weights than the ideal one "
+        f"(structures per domain: ideal {[r.structures for r in ideal_records]}, relaxed "
+        f"{[r.structures for r in relaxed_records]}): the relaxation changed its symmetry."
+    ]
+
+
+def _check_same_beams(a: list, b: list) -> None:
+    from surfgeo.errors import ComputationError
+
+    if len(a) != len(b) or any(x != y for x, y in zip(a, b, strict=True)):
+        raise ComputationError("the relaxed and the ideal structure gave different beam sets; this is a bug.")
+
+
+def _equal_groups(order, *curves, rtol: float = 1e-7) -> list[list[int]]:
+    """Beams of ``order`` grouped by equal values in every array of ``curves`` (shape (NE, Nb),
+    NaN equal to NaN, relative tolerance ``rtol``), groups in order of their first beam."""
+    groups: list[list[int]] = []
+    reps: list[int] = []
+    for i in order:
+        i = int(i)
+        same = np.ones(len(reps), dtype=bool)
+        for c in curves:
+            if not same.any():
+                break
+            close = np.isclose(c[:, reps], c[:, i : i + 1], rtol=rtol, atol=0.0, equal_nan=True)
+            same &= np.all(close, axis=0)
+        hit = np.flatnonzero(same)
+        if hit.size:
+            groups[int(hit[0])].append(i)
+        else:
+            reps.append(i)
+            groups.append([i])
+    return [sorted(g) for g in groups]
+
+
+def intensity_ratio(relaxed, ideal) -> np.ndarray:
+    """``I_relaxed / I_ideal`` of beams (last axis), e.g. of shape (Nb,) or (NE, Nb).
+
+    A beam is extinct in a structure when its intensity is at most :data:`EXTINCTION_RTOL`
+    of that structure's strongest beam (in the same row). The ratio is ``inf`` where the beam
+    is extinct only in the ideal structure (it appears), ``0`` where only in the relaxed one,
+    and NaN where it is extinct in both or does not emerge (NaN intensity).
+    """
+    r = np.asarray(relaxed, dtype=float)
+    i = np.asarray(ideal, dtype=float)
+    ok = np.isfinite(r) & np.isfinite(i)
+    top_r = np.where(np.isfinite(r), r, -np.inf).max(axis=-1, keepdims=True) if r.size else r
+    top_i = np.where(np.isfinite(i), i, -np.inf).max(axis=-1, keepdims=True) if i.size else i
+    with np.errstate(invalid="ignore", divide="ignore"):
+        er = r <= EXTINCTION_RTOL * top_r
+        ei = i <= EXTINCTION_RTOL * top_i
+        out = np.where(er & ei, np.nan, np.where(ei, np.inf, np.where(er, 0.0, r / np.where(ei, 1.0, i))))
+    return np.where(ok, out, np.nan)
+
+
+@dataclass
+class PatternComparison:
+    """Kinematic patterns of a relaxed structure and of its ideal reference at one energy.
+
+    Both patterns hold the same beams in the same order (same surface record after
+    :func:`align_to_reference`).
+
+    Attributes
+    ----------
+    relaxed, ideal : Pattern
+        The two patterns (``relaxed`` carries the positions, domains and notes shown).
+    matching : dict
+        How the atoms were paired and how far they moved (see :func:`align_to_reference`).
+    notes : list of str
+        Caveats of the comparison.
+    """
+
+    relaxed: Pattern
+    ideal: Pattern
+    matching: dict
+    notes: list = field(default_factory=list)
+
+    def __len__(self) -> int:
+        return len(self.relaxed)
+
+    @property
+    def status(self) -> list[str]:
+        """Per beam: ``"appears"`` (extinct only in the ideal structure), ``"vanishes"``
+        (extinct only in the relaxed one), ``"extinct in both"``, or ``""``."""
+        er, ei = self.relaxed.extinct, self.ideal.extinct
+        out = []
+        for a, b in zip(er, ei, strict=True):
+            out.append(BOTH_EXTINCT if a and b else APPEARS if b else VANISHES if a else "")
+        return out
+
+    @property
+    def ratio(self) -> np.ndarray:
+        """``I_relaxed / I_ideal`` per beam: inf where the beam appears, 0 where it vanishes, NaN
+        where it is extinct in both (see :func:`intensity_ratio`)."""
+        return intensity_ratio(self.relaxed.intensity, self.ideal.intensity)
+
+    @property
+    def relative_change(self) -> np.ndarray:
+        """``(I_relaxed - I_ideal) / I_ideal`` per beam (inf, -1 and NaN as for :attr:`ratio`)."""
+        return self.ratio - 1.0
+
+    def ranking(self) -> np.ndarray:
+        """Beam indices, largest change first: beams that appear or vanish, then by
+        ``|ln(I_relaxed / I_ideal)|``; beams extinct in both are left out. Ties keep the beam order."""
+        r = self.ratio
+        with np.errstate(divide="ignore"):
+            key = np.abs(np.log(r))
+        keep = np.flatnonzero(~np.isnan(r))
+        return keep[np.argsort(-key[keep], kind="stable")]
+
+    def change_groups(self, limit: int | None = None) -> list[list[int]]:
+        """:meth:`ranking` with beams of equal intensities in both structures (symmetry-equivalent
+        beams) grouped together; at most ``limit`` groups."""
+        groups = _equal_groups(self.ranking(), self.relaxed.intensity[None], self.ideal.intensity[None])
+        return groups if limit is None else groups[: max(0, int(limit))]
+
+    def to_dict(self, screen=None, top: int = 8) -> dict:
+        """JSON form: :meth:`Pattern.to_dict` of the relaxed structure plus a ``reference`` block.
+
+        ``reference`` holds ``matching``, ``domains`` (of the ideal structure), ``beams`` (in the
+        order of the top-level beams: ``hk``, ``intensity``, ``extinct``, ``ratio``,
+        ``relative_change`` (null where undefined), ``status``), ``largest_changes`` (at most
+        ``top`` groups: ``beams``, ``ratio``, ``relative_change``, ``status``) and ``notes``.
+        """
+        out = self.relaxed.to_dict(screen)
+        ratio = self.ratio
+        st = self.status
+        ext = self.ideal.extinct
+
+        def num(x):
+            return float(x) if np.isfinite(x) else None
+
+        beams = [
+            {
+                "hk": [format_index(h), format_index(k)],
+                "intensity": float(self.ideal.intensity[i]),
+                "extinct": bool(ext[i]),
+                "ratio": num(ratio[i]),
+                "relative_change": num(ratio[i] - 1.0),
+                "status": st[i],
+            }
+            for i, (h, k) in enumerate(self.ideal.hk)
+        ]
+        largest = [
+            {
+                "beams": [[format_index(h), format_index(k)] for h, k in (self.relaxed.hk[i] for i in g)],
+                "ratio": num(ratio[g[0]]),
+                "relative_change": num(ratio[g[0]] - 1.0),
+                "status": st[g[0]],
+            }
+            for g in self.change_groups(top)
+        ]
+        out["reference"] = {
+            "matching": dict(self.matching),
+            "domains": [d.to_dict() for d in self.ideal.domain_records],
+            "beams": beams,
+            "largest_changes": largest,
+            "notes": list(self.notes),
+        }
+        return out
+
+
+def compare_slab_patterns(
+    relaxed,
+    reference,
+    energy: float,
+    incidence=(0.0, 0.0),
+    *,
+    domains: bool = True,
+    weights=None,
+    theta_max: float = 90.0,
+    symprec: float | None = None,
+    match: str = "auto",
+    max_displacement: float | None = None,
+    **kinematic,
+) -> PatternComparison:
+    """Kinematic pattern of a relaxed structure next to that of its ideal reference.
+
+    The relaxed structure is first aligned with the reference (:func:`align_to_reference`:
+    same system, atoms matched, reference frame and surface record), then both patterns are
+    computed with :func:`slab_pattern` with the same energy, incidence, domain options and
+    kinematic settings.
+
+    Parameters
+    ----------
+    relaxed, reference : ase.Atoms
+        The relaxed structure (e.g. from a DFT code; no surface record needed) and the ideal
+        slab or model it started from (its ``info["surfgeo"]`` record gives the surface cell).
+    energy : float
+        Beam energy, eV.
+    incidence : (float, float)
+        Polar angle from the surface normal and azimuth from a1, degrees.
+    domains, weights, theta_max, symprec
+        As for :func:`slab_pattern`.
+    match : {"auto", "index", "distance"}
+        How to pair the atoms.
+    max_displacement : float, optional
+        Refuse when an atom moved further (Angstrom).
+    **kinematic
+        Options of :func:`surfgeo.diffraction.kinematic.kinematic_iv`, used for both.
+
+    Returns
+    -------
+    PatternComparison
+
+    Notes
+    -----
+    Kinematic intensities are qualitative for LEED (multiple scattering is strong); so are
+    their changes on relaxation. Positions do not change (same surface cell).
+
+    References
+    ----------
+    .. [1] M. A. Van Hove, W. H. Weinberg and C.-M. Chan, *Low-Energy Electron Diffraction*,
+       Springer (1986): the kinematic sum, whose layer phases ``exp(i q_z z)`` carry the
+       sensitivity of the intensities to interlayer spacings.
+    """
+    aligned, matching = align_to_reference(
+        relaxed, reference, method=match, max_displacement=max_displacement
+    )
+    opts = dict(domains=domains, weights=weights, theta_max=theta_max, symprec=symprec, **kinematic)
+    ideal = slab_pattern(reference, energy, incidence, **opts)
+    rel = slab_pattern(aligned, energy, incidence, **opts)
+    _check_same_beams(ideal.hk, rel.hk)
+    notes = [COMPARISON_NOTE] + ([matching["note"]] if matching["note"] else [])
+    notes += _domain_notes(ideal.domain_records, rel.domain_records)
+    return PatternComparison(rel, ideal, matching, notes)
+
+
+@dataclass
+class SweepComparison:
+    """Kinematic I(V) curves of a relaxed structure and of its ideal reference.
+
+    Attributes
+    ----------
+    relaxed, ideal : surfgeo.diffraction.sweep.PatternSweep
+        The two sweeps, with the same energies and beams.
+    matching : dict
+        How the atoms were paired (see :func:`align_to_reference`).
+    notes : list of str
+    """
+
+    relaxed: object
+    ideal: object
+    matching: dict
+    notes: list = field(default_factory=list)
+
+    def _mean(self, intensity) -> np.ndarray:
+        with np.errstate(invalid="ignore"):
+            ok = np.isfinite(intensity)
+            n = ok.sum(axis=0)
+            return np.where(n > 0, np.where(ok, intensity, 0.0).sum(axis=0) / np.maximum(n, 1), np.nan)
+
+    @property
+    def mean_relaxed(self) -> np.ndarray:
+        """Mean intensity of each beam over the energies where it emerges (relaxed)."""
+        return self._mean(self.relaxed.intensity)
+
+    @property
+    def mean_ideal(self) -> np.ndarray:
+        """Mean intensity of each beam over the energies where it emerges (ideal)."""
+        return self._mean(self.ideal.intensity)
+
+    @property
+    def mean_ratio(self) -> np.ndarray:
+        """Ratio of the mean intensities, relaxed over ideal (NaN where the ideal mean is 0)."""
+        mi = self.mean_ideal
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(mi > 0, self.mean_relaxed / np.where(mi > 0, mi, 1.0), np.nan)
+
+    def peak_energies(self) -> tuple[np.ndarray, np.ndarray]:
+        """Energy (eV) of the strongest maximum of each beam's curve: (relaxed, ideal)."""
+        e = self.relaxed.energies
+
+        def peak(inten):
+            out = np.full(inten.shape[1], np.nan)
+            ok = np.isfinite(inten).any(axis=0)
+            out[ok] = e[np.nanargmax(inten[:, ok], axis=0)]
+            return out
+
+        return peak(self.relaxed.intensity), peak(self.ideal.intensity)
+
+    def correlation(self) -> np.ndarray:
+        """Pearson correlation coefficient of the relaxed and ideal curve of each beam (shape
+        only, insensitive to scale) over the energies where it emerges; NaN with fewer than
+        three energies or a flat curve."""
+        a, b = self.relaxed.intensity, self.ideal.intensity
+        out = np.full(a.shape[1], np.nan)
+        for j in range(a.shape[1]):
+            ok = np.isfinite(a[:, j]) & np.isfinite(b[:, j])
+            if ok.sum() < 3:
+                continue
+            x, y = a[ok, j] - a[ok, j].mean(), b[ok, j] - b[ok, j].mean()
+            den = math.sqrt(float(x @ x) * float(y @ y))
+            if den > 0:
+                out[j] = float(x @ y) / den
+        return out
+
+    def strongest(self, n: int | None = None) -> list[list[int]]:
+        """Beams (indices into the sweep's beams) by decreasing mean intensity (the larger of the
+        two structures'), with beams of equal curves in both structures (symmetry-equivalent
+        beams) grouped together; at most ``n`` groups."""
+        key = np.fmax(self.mean_relaxed, self.mean_ideal)
+        key = np.where(np.isfinite(key), key, -np.inf)
+        order = np.argsort(-key, kind="stable")
+        groups = _equal_groups(order, self.relaxed.intensity, self.ideal.intensity)
+        return groups if n is None else groups[: max(0, int(n))]
+
+    def to_dict(self, screen=None, top: int = 8) -> dict:
+        """JSON form: the relaxed sweep's ``to_dict`` plus a ``reference`` block.
+
+        ``reference`` holds ``matching``, ``domains`` (of the ideal structure), ``beams`` (in
+        the order of the top-level beams: ``hk``, ``intensity`` per energy (null where the beam
+        does not emerge), ``mean_ratio``, ``correlation``, ``peak_eV_relaxed``,
+        ``peak_eV_ideal``), ``strongest`` (the ``top`` strongest groups of equivalent beams, each a
+        list of labels) and ``notes``.
+        """
+        out = self.relaxed.to_dict(screen)
+        inten = self.ideal.intensity
+        mr = self.mean_ratio
+        corr = self.correlation()
+        pr, pi = self.peak_energies()
+
+        def num(x):
+            return float(x) if np.isfinite(x) else None
+
+        beams = []
+        for j, (h, k) in enumerate(self.ideal.hk):
+            beams.append({
+                "hk": [format_index(h), format_index(k)],
+                "intensity": [num(v) for v in inten[:, j]],
+                "mean_ratio": num(mr[j]),
+                "correlation": num(corr[j]),
+                "peak_eV_relaxed": num(pr[j]),
+                "peak_eV_ideal": num(pi[j]),
+            })
+        hk = self.ideal.hk
+        out["reference"] = {
+            "matching": dict(self.matching),
+            "domains": [d.to_dict() for d in self.ideal.base.domain_records],
+            "beams": beams,
+            "strongest": [
+                [[format_index(hk[j][0]), format_index(hk[j][1])] for j in g] for g in self.strongest(top)
+            ],
+            "notes": list(self.notes),
+        }
+        return out
+
+
+def compare_slab_sweeps(
+    relaxed,
+    reference,
+    energies,
+    incidence=(0.0, 0.0),
+    *,
+    domains: bool = True,
+    weights=None,
+    theta_max: float = 90.0,
+    symprec: float | None = None,
+    match: str = "auto",
+    max_displacement: float | None = None,
+    show_progress: bool | None = None,
+    **kinematic,
+) -> SweepComparison:
+    """Kinematic I(V) curves of a relaxed structure and of its ideal reference.
+
+    Like :func:`compare_slab_patterns` over an energy range, with
+    :func:`surfgeo.diffraction.sweep.pattern_sweep` for both structures.
+
+    Notes
+    -----
+    Kinematic I(V) curves are qualitative for LEED (multiple scattering is strong).
+
+    References
+    ----------
+    .. [1] M. A. Van Hove, W. H. Weinberg and C.-M. Chan, *Low-Energy Electron Diffraction*,
+       Springer (1986): kinematic I(V) curves.
+    """
+    from surfgeo.diffraction.sweep import pattern_sweep
+
+    aligned, matching = align_to_reference(
+        relaxed, reference, method=match, max_displacement=max_displacement
+    )
+    opts = dict(incidence=incidence, domains=domains, weights=weights, theta_max=theta_max, symprec=symprec,
+                show_progress=show_progress, **kinematic)
+    ideal = pattern_sweep(energies, atoms=reference, **opts)
+    rel = pattern_sweep(energies, atoms=aligned, **opts)
+    _check_same_beams(ideal.hk, rel.hk)
+    notes = [COMPARISON_NOTE] + ([matching["note"]] if matching["note"] else [])
+    notes += _domain_notes(ideal.base.domain_records, rel.base.domain_records)
+    return SweepComparison(rel, ideal, matching, notes)

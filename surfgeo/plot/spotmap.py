@@ -442,3 +442,233 @@ def animate_sweep(
         images[0].save(
             tmp, format="GIF", save_all=True, append_images=images[1:], duration=int(1000 / fps), loop=0
         )
+
+
+# ----------------------------------------------------------------------------- relaxed against ideal
+#: Colours of the two structures in comparison figures.
+IDEAL_COLOUR = "#7d8fa6"
+RELAXED_COLOUR = "#e8793a"
+
+
+def _half_disc(side: str):
+    """A half-disc marker path (``"left"`` or ``"right"``) centred on the full disc's centre."""
+    from matplotlib.path import Path
+
+    start = 0.5 * math.pi if side == "left" else -0.5 * math.pi
+    t = np.linspace(start, start + math.pi, 33)
+    verts = np.column_stack([np.cos(t), np.sin(t)])
+    verts = np.vstack([verts, verts[:1]])
+    codes = [Path.MOVETO] + [Path.LINETO] * (len(verts) - 2) + [Path.CLOSEPOLY]
+    return Path(verts, codes)
+
+
+def _split_spots(ax, xy, comp, on_screen: bool) -> None:
+    """Each beam as a disc split in two: left half the ideal, right half the relaxed structure.
+
+    Areas grow with the square root of the intensity relative to the strongest beam of either
+    structure (so that the two halves compare); extinct halves are drawn hollow.
+    """
+    rel, ideal = comp.relaxed, comp.ideal
+    top = max(float(np.nanmax(rel.intensity)), float(np.nanmax(ideal.intensity))) if len(rel) else 1.0
+    top = top if top > 0 else 1.0
+    ok = np.isfinite(xy[:, 0])
+    for pat, side, colour in ((ideal, "left", IDEAL_COLOUR), (rel, "right", RELAXED_COLOUR)):
+        size = 12 + 220 * np.sqrt(np.clip(np.nan_to_num(pat.intensity) / top, 0, 1))
+        ext = pat.extinct
+        marker = _half_disc(side)
+        full = ok & ~ext
+        if full.any():
+            ax.scatter(xy[full, 0], xy[full, 1], s=size[full], marker=marker, c=colour, edgecolors="none",
+                       zorder=4)
+        hol = ok & ext
+        if hol.any():
+            ax.scatter(xy[hol, 0], xy[hol, 1], s=45.0, marker=marker, facecolors="none", edgecolors=colour,
+                       linewidths=1.1, zorder=4)
+    if len(rel) <= 90:
+        _annotate(ax, xy, rel, "#e5e5e5" if on_screen else "#4a4e69", offset=(6, 5))
+
+
+def _comparison_legend():
+    from matplotlib.lines import Line2D
+
+    return [
+        Line2D([], [], ls="", marker=_half_disc("left"), ms=11, mfc=IDEAL_COLOUR, mec="none",
+               label="ideal (left half)"),
+        Line2D([], [], ls="", marker=_half_disc("right"), ms=11, mfc=RELAXED_COLOUR, mec="none",
+               label="relaxed (right half)"),
+        Line2D([], [], ls="", marker="o", ms=8, mfc="none", mec="#777777", label="extinct (kinematic)"),
+    ]
+
+
+def _draw_changes(ax, comp, top: int) -> None:
+    """Horizontal bars of log2(I_relaxed / I_ideal) for the groups of beams that changed most."""
+    from surfgeo.diffraction.pattern import APPEARS, VANISHES
+
+    groups = comp.change_groups(top)
+    ratio = comp.ratio
+    status = comp.status
+    if not groups:
+        ax.text(0.5, 0.5, "every beam is extinct\nin both structures", ha="center", va="center",
+                transform=ax.transAxes, fontsize=9)
+        ax.set_axis_off()
+        return
+    finite = [math.log2(ratio[g[0]]) for g in groups if 0 < ratio[g[0]] < np.inf]
+    span = max([abs(v) for v in finite] + [0.1]) * 1.25
+    y = np.arange(len(groups))[::-1]
+    for yi, g in zip(y, groups, strict=True):
+        i = g[0]
+        st = status[i]
+        if st in (APPEARS, VANISHES):
+            v = span if st == APPEARS else -span
+            ax.barh(yi, v, color="none", edgecolor=RELAXED_COLOUR if v > 0 else IDEAL_COLOUR, hatch="///",
+                    height=0.7)
+            ax.text(v, yi, " appears" if v > 0 else "vanishes ", va="center",
+                    ha="left" if v > 0 else "right", fontsize=7)
+        else:
+            v = math.log2(ratio[i])
+            ax.barh(yi, v, color=RELAXED_COLOUR if v >= 0 else IDEAL_COLOUR, height=0.7)
+            ax.text(v, yi, f" {100 * (ratio[i] - 1):+.1f}% " if abs(v) > 0 else " 0% ", va="center",
+                    ha="left" if v >= 0 else "right", fontsize=7)
+    labels = []
+    for g in groups:
+        h, k = comp.relaxed.hk[g[0]]
+        lab = f"({format_index(h)},{format_index(k)})"
+        labels.append(lab + (f" \u00d7{len(g)}" if len(g) > 1 else ""))
+    ax.set_yticks(y)
+    ax.set_yticklabels(labels, fontsize=7)
+    ax.axvline(0.0, color="#333333", lw=0.8)
+    ax.set_xlim(-span * 1.45, span * 1.45)
+    ax.set_xlabel("log$_2$(I$_{relaxed}$ / I$_{ideal}$)")
+    ax.set_title(f"largest changes ({len(groups)} groups of equivalent beams)", fontsize=9)
+
+
+def plot_comparison(comp, path, screen=None, force: bool = False, view: str = "both", top: int = 8,
+                    names=None) -> None:
+    """Relaxed against ideal at one energy: split-spot maps and a bar chart of the changes.
+
+    Parameters
+    ----------
+    comp : surfgeo.diffraction.pattern.PatternComparison
+    path : str or Path
+        PNG or SVG (from the ending).
+    screen : ScreenGeometry, optional
+        For the screen panel (``view`` "screen" or "both").
+    view : {"both", "kspace", "screen"}
+        Spot-map panels; the bar chart of the changes is always drawn.
+    top : int
+        Groups of equivalent beams in the bar chart.
+    names : (str, str), optional
+        File names of the relaxed and the ideal structure, for the title.
+    """
+    from matplotlib.patches import Circle
+
+    from surfgeo.diffraction.electron import incident_k_parallel, wavenumber
+
+    rel = comp.relaxed
+    panels = (
+        ["kspace", "screen"]
+        if view == "both" and screen is not None
+        else ["screen" if view == "screen" and screen is not None else "kspace"]
+    )
+    fig = figure(figsize=(5.4 * len(panels) + 5.0, 6.0))
+    axes = fig.subplots(1, len(panels) + 1, squeeze=False, gridspec_kw={"width_ratios": [1.0] * len(panels)
+                                                                           + [0.85]})[0]
+    for ax, kind in zip(axes, panels, strict=False):
+        if kind == "kspace":
+            ax.set_facecolor(KSPACE_BACKGROUND)
+            k = wavenumber(rel.energy)
+            kin = incident_k_parallel(rel.energy, rel.incidence_xy)
+            ax.add_patch(Circle((0, 0), k, fill=False, ls="--", lw=0.8, ec="#9a8c98", zorder=1))
+            ax.plot([kin[0]], [kin[1]], marker="+", color="#9a8c98", ms=10, zorder=2)
+            _split_spots(ax, rel.k_parallel, comp, on_screen=False)
+            lim = k * 1.08
+            ax.set_xlim(-lim, lim)
+            ax.set_ylim(-lim, lim)
+            ax.set_aspect("equal")
+            ax.set_xlabel("k$_x$ (1/\u00c5)")
+            ax.set_ylabel("k$_y$ (1/\u00c5)")
+            ax.set_title("parallel momentum (dashed: |k$_\\parallel$| = k)", fontsize=9)
+        else:
+            from matplotlib.patches import Polygon
+
+            ax.set_facecolor(SCREEN_BACKGROUND)
+            rim = screen.rim()
+            ax.add_patch(Polygon(rim[np.isfinite(rim[:, 0])], closed=True, fill=False, ec="#e5e5e5", lw=0.8,
+                                 ls="--"))
+            _draw_shadow(ax, screen)
+            px, vis = rel.screen_positions(screen)
+            _split_spots(ax, np.where(vis[:, None], px, np.nan), comp, on_screen=True)
+            ax.set_xlim(-0.5, screen.width - 0.5)
+            ax.set_ylim(screen.height - 0.5, -0.5)
+            ax.set_aspect("equal")
+            ax.set_xlabel("x (px)")
+            ax.set_ylabel("y (px)")
+            ax.set_title(f"{screen.kind} screen, acceptance {screen.acceptance_deg:g}\u00b0", fontsize=9)
+    _draw_changes(axes[-1], comp, top)
+    fig.legend(handles=_comparison_legend(), loc="lower center", ncol=3, fontsize=8, frameon=False,
+               bbox_to_anchor=(0.5, 0.02))
+    who = f" ({names[0]} against {names[1]})" if names else ""
+    fig.suptitle(f"Relaxed against ideal{who} \u2014 {_title(rel)}", fontsize=11)
+    fig.text(0.01, 0.005, "kinematic intensities and their changes: qualitative for LEED; same units for "
+             "both structures", fontsize=7, color="#555555")
+    fig.subplots_adjust(bottom=0.16, wspace=0.35)
+    save_figure(fig, path, force)
+
+
+def plot_iv_comparison(comp, path, force: bool = False, top: int = 8, names=None) -> None:
+    """Kinematic I(V) curves of the strongest beams, relaxed (solid) against ideal (dashed).
+
+    Parameters
+    ----------
+    comp : surfgeo.diffraction.pattern.SweepComparison
+    path : str or Path
+        PNG or SVG (from the ending).
+    top : int
+        Number of panels: the strongest groups of equivalent beams (one curve per group).
+    names : (str, str), optional
+        File names of the relaxed and the ideal structure, for the title.
+    """
+    groups = comp.strongest(top)
+    e = comp.relaxed.energies
+    n = max(1, len(groups))
+    cols = min(n, 4)
+    rows = math.ceil(n / cols)
+    fig = figure(figsize=(3.3 * cols + 0.6, 2.6 * rows + 1.0))
+    axes = fig.subplots(rows, cols, squeeze=False)
+    ratio = comp.mean_ratio
+    corr = comp.correlation()
+    hk = comp.relaxed.hk
+    for a, ax in enumerate(axes.ravel()):
+        if a >= len(groups):
+            ax.set_axis_off()
+            continue
+        j = groups[a][0]
+        ax.plot(e, comp.ideal.intensity[:, j], ls="--", lw=1.3, color=IDEAL_COLOUR, label="ideal")
+        ax.plot(e, comp.relaxed.intensity[:, j], ls="-", lw=1.4, color=RELAXED_COLOUR, label="relaxed")
+        lab = f"({format_index(hk[j][0])},{format_index(hk[j][1])})"
+        if len(groups[a]) > 1:
+            lab += f" \u00d7{len(groups[a])}"
+        ax.set_title(lab, fontsize=9)
+        info = []
+        if np.isfinite(ratio[j]):
+            info.append(f"mean ratio {ratio[j]:.3g}")
+        if np.isfinite(corr[j]):
+            info.append(f"corr {corr[j]:.2f}")
+        ax.text(0.98, 0.96, "\n".join(info), transform=ax.transAxes, ha="right", va="top", fontsize=7,
+                color="#333333")
+        ax.tick_params(labelsize=7)
+        ax.set_ylim(bottom=0)
+        if a // cols == rows - 1 or a + cols >= len(groups):
+            ax.set_xlabel("energy (eV)", fontsize=8)
+        if a % cols == 0:
+            ax.set_ylabel("intensity (|f|$^2$)", fontsize=8)
+    handles, labels = axes[0, 0].get_legend_handles_labels()
+    fig.legend(handles, labels, loc="upper right", fontsize=8, frameon=False)
+    who = f" ({names[0]} against {names[1]})" if names else ""
+    inc = comp.relaxed.base.incidence
+    where = "normal incidence" if inc[0] == 0 else f"incidence {inc[0]:g}\u00b0 at azimuth {inc[1]:g}\u00b0"
+    fig.suptitle(f"Kinematic I(V): relaxed against ideal{who}, {where}", fontsize=10)
+    fig.text(0.01, 0.005, "kinematic I(V) curves are qualitative for LEED (multiple scattering is strong); "
+             "\u00d7n: n equivalent beams", fontsize=7, color="#555555")
+    fig.tight_layout(rect=(0, 0.03, 1, 0.95))
+    save_figure(fig, path, force)
