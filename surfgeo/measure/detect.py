@@ -63,6 +63,7 @@ Coordinates: x right, y down, the centre of the top-left pixel at (0, 0).
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -267,6 +268,28 @@ def _mesh_planes(a: np.ndarray, o: np.ndarray, m: int, b: int, level: np.ndarray
     return coef[..., 0], np.where(usable, n / (m * m), 0.0)
 
 
+@functools.lru_cache(maxsize=8)
+def _loess_maps(q: float, keys_w: tuple, keys_v: tuple) -> tuple[np.ndarray, np.ndarray]:
+    """Linear maps from stacked moments to the normal matrix (flattened) and right-hand side.
+
+    Basis: 1, u, v, u^2 + q, u v, v^2 + q; moments are keyed by the exponents (a, c) of u^a v^c.
+    """
+    basis = [{(0, 0): 1.0}, {(1, 0): 1.0}, {(0, 1): 1.0}, {(2, 0): 1.0, (0, 0): q}, {(1, 1): 1.0},
+             {(0, 2): 1.0, (0, 0): q}]
+    nb = len(basis)
+    iw = {k: n for n, k in enumerate(keys_w)}
+    iv = {k: n for n, k in enumerate(keys_v)}
+    ca = np.zeros((len(keys_w), nb * nb))
+    cr = np.zeros((len(keys_v), nb))
+    for i, pi in enumerate(basis):
+        for (a1, c1), k1 in pi.items():
+            cr[iv[(a1, c1)], i] += k1
+            for j, pj in enumerate(basis):
+                for (a2, c2), k2 in pj.items():
+                    ca[iw[(a1 + a2, c1 + c2)], i * nb + j] += k1 * k2
+    return ca, cr
+
+
 def _loess_grid(values: np.ndarray, weights: np.ndarray, width: float = LOESS_WIDTH,
                 mesh_means: bool = True) -> np.ndarray:
     """Smooth a mesh grid by local weighted quadratic regression, returning centre values.
@@ -297,34 +320,35 @@ def _loess_grid(values: np.ndarray, weights: np.ndarray, width: float = LOESS_WI
 
     mw = moments(wv, 4)
     mv = moments(wv * val, 2)
-    # basis: 1, u, v, u^2 + q, u v, v^2 + q as polynomials {(a, c): coefficient}
-    basis = [{(0, 0): 1.0}, {(1, 0): 1.0}, {(0, 1): 1.0}, {(2, 0): 1.0, (0, 0): q}, {(1, 1): 1.0},
-             {(0, 2): 1.0, (0, 0): q}]
-
-    def inner(p1, p2, mom):
-        acc = 0.0
-        for (a1, c1), k1 in p1.items():
-            for (a2, c2), k2 in p2.items():
-                acc = acc + k1 * k2 * mom[(a1 + a2, c1 + c2)]
-        return acc
-
-    nb = len(basis)
-    A = np.empty((h, w, nb, nb))
-    rhs = np.empty((h, w, nb))
-    for i in range(nb):
-        rhs[..., i] = inner(basis[i], {(0, 0): 1.0}, mv)
-        for j in range(i, nb):
-            A[..., i, j] = A[..., j, i] = inner(basis[i], basis[j], mw)
+    keys_w, keys_v = list(mw), list(mv)
+    ca, cr = _loess_maps(q, tuple(keys_w), tuple(keys_v))
+    nb = cr.shape[1]
+    A = (np.stack([mw[k] for k in keys_w], axis=-1) @ ca).reshape(h, w, nb, nb)
+    rhs = np.stack([mv[k] for k in keys_v], axis=-1) @ cr
     # fall back to lower orders where the normal equations are ill-conditioned (Hadamard
     # ratio det(A) / prod(diag A) tiny: too little or too one-sided support)
     support = mw[(0, 0)]
-    level = np.zeros((h, w), dtype=int)
-    level[support > 1e-9] = 1
-    for k in (3, nb):
-        Ak = A[..., :k, :k]
-        d = np.sqrt(np.maximum(np.einsum("...ii->...i", Ak), 1e-300))
-        ratio = np.linalg.det(Ak / (d[..., :, None] * d[..., None, :]))
-        level[(ratio > 1e-5) & (level > 0)] = k
+    level = np.where(support > 1e-9, 1, 0)
+
+    def well_posed(k, where):
+        Ak = A[where][:, :k, :k]
+        d = np.sqrt(np.maximum(np.einsum("nii->ni", Ak), 1e-300))
+        return np.linalg.det(Ak / (d[:, :, None] * d[:, None, :])) > 1e-5
+
+    # meshes whose whole neighbourhood carries weight are well posed; test only the others
+    typical = max(float(np.median(wv)), 1e-300)
+    interior = ndi.minimum_filter(wv, size=2 * r + 1, mode="constant") > 0.25 * typical
+    level[interior] = nb
+    cand = (level > 0) & ~interior
+    if cand.any():
+        good = np.zeros((h, w), dtype=bool)
+        good[cand] = well_posed(nb, cand)
+        level[good] = nb
+        rest = cand & ~good
+        if rest.any():
+            good3 = np.zeros((h, w), dtype=bool)
+            good3[rest] = well_posed(3, rest)
+            level[good3] = 3
     out = np.zeros((h, w))
     for k in (nb, 3, 1):
         sel = level == k
@@ -506,7 +530,13 @@ def _front(
     sigma: float,
     b: int,
     threshold: float,
+    quick: bool = False,
 ) -> _Front:
+    """Background, band-pass, noise and candidate maxima (method steps 1-3).
+
+    ``quick`` (used for the provisional pass of the width estimate) keeps the first,
+    median-based background and the per-mesh MAD noise.
+    """
     h, w = data.shape
     hp, wp = -(-h // b) * b, -(-w // b) * b
     m = b // 2
@@ -536,7 +566,11 @@ def _front(
     pix_noise0 = np.maximum(_fill_meshes(_MAD * mad0, usable_mesh), 1e-12)
     bg0 = _fill_meshes(bg0, usable_mesh)
     around = ndi.median_filter(bg0, size=3, mode="nearest")
-    bg0 = _loess_grid(bg0, np.where(bg0 - around > 3 * 1.25 * pix_noise0 / m, 0.0, w0))
+    bright = bg0 - around > 3 * 1.25 * pix_noise0 / m
+    if quick:
+        bg0 = ndi.median_filter(np.where(bright, around, bg0), size=3, mode="nearest")
+    else:
+        bg0 = _loess_grid(bg0, np.where(bright, 0.0, w0))
     hb, wb = bg0.shape
     up = _Upsampler(hp, wp, hb, wb, b)
     all_valid = bool(valid.all())
@@ -554,8 +588,11 @@ def _front(
     zero = _fill_meshes(med, wt > 0) if (wt > 0).any() else np.zeros_like(med)
     noise = np.maximum(_fill_meshes(_MAD * mad, wt > 0) if (wt > 0).any() else pix_noise0, floor)
     ok = ok_sub & ~_sources(s_sub, zero, noise, 2.5, sigma, m)
-    plane, wt = _mesh_planes(img_sub, ok & ~sat[::2, ::2] if any_sat else ok, m, b, bg0, pix_noise0)
-    bg = _loess_grid(plane, wt * (np.median(pix_noise0) / pix_noise0) ** 2)
+    if quick:
+        bg = bg0
+    else:
+        plane, wt = _mesh_planes(img_sub, ok & ~sat[::2, ::2] if any_sat else ok, m, b, bg0, pix_noise0)
+        bg = _loess_grid(plane, wt * (np.median(pix_noise0) / pix_noise0) ** 2)
     background = up.full(bg)
     np.subtract(smooth, background, out=smooth)  # now the band-passed image
     s_sub = smooth[::2, ::2]
@@ -574,12 +611,15 @@ def _front(
     s_med, s_noise, wt = zero_level(ok)
     ok = ok_sub & ~_sources(s_sub, s_med, s_noise, max(threshold, 4.0), 2 * sigma, m)
     s_med, raw_noise, wt = zero_level(ok)
-    s_med = _loess_grid(s_med, wt)
-    dev = s_sub - up.sub(s_med)
-    for _ in range(2):
-        raw_noise = _pooled_noise(dev, ok, raw_noise, m)
-        raw_noise = np.maximum(_fill_meshes(raw_noise, np.isfinite(raw_noise) & (wt > 0)), floor)
-    s_noise = _smooth_meshes(raw_noise, (wt > 0).astype(float))
+    if quick:
+        s_noise = raw_noise
+    else:
+        s_med = _smooth_meshes(s_med, wt)
+        dev = s_sub - up.sub(s_med)
+        for _ in range(2):
+            raw_noise = _pooled_noise(dev, ok, raw_noise, m)
+            raw_noise = np.maximum(_fill_meshes(raw_noise, np.isfinite(raw_noise) & (wt > 0)), floor)
+        s_noise = _smooth_meshes(raw_noise, (wt > 0).astype(float))
 
     # candidates: above a conservative piecewise-constant threshold, then exact test
     thr = ndi.minimum_filter(s_med + 0.9 * threshold * s_noise, size=3, mode="nearest").astype(np.float32)
@@ -891,7 +931,7 @@ def _estimate_sigma(data, usable, sat, max_spots: int, depth: int = 0) -> float 
     else:
         d2, u2, s2, f = data, usable, sat, 1
     s0 = FALLBACK_SIGMA / f
-    front = _front(d2, u2, s2, s0, _mesh_size(s0, d2.shape, 64 // f), 10.0)
+    front = _front(d2, u2, s2, s0, _mesh_size(s0, d2.shape, 64 // f), 10.0, quick=True)
     if front.rows.size < 3:
         return None
     order = np.argsort(-front.stat)
