@@ -61,6 +61,19 @@ def test_prototypes_against_ase(formula, structure, a, c, ase_kw, sg):
     assert ours.info["surfgeo_bulk"]["spacegroup"] == sg
 
 
+@pytest.mark.parametrize("formula,structure,a,c,ase_kw,sg", PROTOS, ids=[p[1] for p in PROTOS])
+def test_recorded_formula_is_the_formula_unit(formula, structure, a, c, ase_kw, sg):
+    # Regression: the record (and the build header) said Na4Cl4 and Ca4F8, the contents of the
+    # conventional cell, instead of the formula unit typed by the user.
+    assert bulk_crystal(formula, structure, a=a, c=c).info["surfgeo_bulk"]["formula"] == formula
+
+
+def test_formula_unit_of_a_structure_file(tmp_path):
+    path = tmp_path / "nacl.cif"
+    ase.io.write(path, ase_bulk("NaCl", "rocksalt", a=5.64, cubic=True))
+    assert read_bulk(path).info["surfgeo_bulk"]["formula"] == "NaCl"
+
+
 def test_perovskite():
     sto = bulk_crystal("SrTiO3", "perovskite", a=3.905)
     # Source: International Tables Vol. A; From memory: cubic perovskite Pm-3m, no. 221

@@ -339,7 +339,7 @@ def bulk_crystal(
             f"spglib finds space group {sg} for this {proto_name} crystal instead of {proto['sg']}; "
             "check the lattice constants."
         )
-    formula = atoms.get_chemical_formula(mode="reduce") if len(names) > 1 else names[0]
+    formula = _formula_unit(atoms) if len(names) > 1 else names[0]
     atoms.info[BULK_KEY] = {
         "formula": formula,
         "structure": proto_name,
@@ -351,6 +351,11 @@ def bulk_crystal(
         "species": names,
     }
     return atoms
+
+
+def _formula_unit(atoms: Atoms) -> str:
+    """The formula unit of a crystal (NaCl, not the Na4Cl4 of its conventional cell)."""
+    return str(atoms.symbols.formula.reduce()[0])
 
 
 def _example(proto: str) -> str:
@@ -417,7 +422,7 @@ def read_bulk(path: str | os.PathLike, a: float | None = None, c: float | None =
     angles = out.cell.angles()
     hexagonal = abs(lengths[0] - lengths[1]) < 1e-6 * lengths[0] and abs(angles[2] - 120) < 1e-4
     out.info[BULK_KEY] = {
-        "formula": out.get_chemical_formula(mode="reduce"),
+        "formula": _formula_unit(out),
         "structure": f"from file {p.name} ({data.international})",
         "a": float(lengths[0]),
         "c": float(lengths[2]),
