@@ -236,3 +236,16 @@ def test_model_file_p4g_glide_extinctions(capsys):
         )
     for hk in [("1/2", "1/2"), ("1", "1/2"), ("1", "0")]:
         assert beams[hk]["extinct"] is False
+
+
+def test_help_documents_the_reference_comparison(capsys):
+    with pytest.raises(SystemExit) as exc:
+        main(["pattern", "--help"])
+    assert exc.value.code == 0
+    out = " ".join(capsys.readouterr().out.split())
+    assert "--reference IDEAL" in out and "surfgeo pattern CONTCAR --reference" in out
+    # every key of the JSON reference block is named in the help
+    for key in ("matching", "largest_changes", "relative_change", "status", "mean_ratio", "correlation",
+                "peak_eV_relaxed", "peak_eV_ideal", "strongest", "intensity_reference"):
+        assert key in out, key
+    assert "qualitative for LEED" in out

@@ -320,3 +320,38 @@ def test_cli_refusals_one_sentence(capsys, tmp_path, files, which, extra, words)
 def test_cli_reference_needs_the_relaxed_model(capsys, files):
     status, _, err = _run(capsys, "pattern", "--reference", files["ideal"], "--energy", "100")
     assert status == 2 and "MODEL" in err and "Traceback" not in err
+
+
+def test_cli_model_file_reference_keeps_p4g_extinctions(capsys, tmp_path):
+    from pathlib import Path
+
+    from surfgeo.slab.model import build_model
+
+    model = Path(__file__).resolve().parents[1] / "structures" / "ni100_c_p4g.toml"
+    ideal = build_model(model)
+    ni = np.flatnonzero(ideal.numbers == 28)
+    top_ni = ni[np.isclose(ideal.positions[ni, 2], ideal.positions[ni, 2].max(), atol=0.05)]
+    assert len(top_ni) == 4
+    relaxed = ideal.copy()
+    relaxed.positions[top_ni, 2] += 0.06  # the clock-rotated Ni layer moves out as a whole: p4g is kept
+    contcar = tmp_path / "CONTCAR"
+    ase.io.write(contcar, _shuffled_plain(relaxed), format="vasp")
+    status, out, err = _run(
+        capsys, "pattern", contcar, "--reference", model, "--energy", "120", "--theta-max", "40",
+        "--json", "-",
+    )
+    assert status == 0, err
+    data = json.loads(out)
+    ref = {tuple(b["hk"]): b for b in data["reference"]["beams"]}
+    # Source: International Tables for Crystallography Vol. A, plane group p4g: h0 with h = 2n and 0k with
+    # k = 2n in the (2x2) cell, i.e. (1/2, 0), (0, 1/2) ... absent at normal incidence, in both structures
+    for hk in [("1/2", "0"), ("0", "1/2"), ("-1/2", "0"), ("0", "-1/2")]:
+        assert ref[hk]["status"] == BOTH_EXTINCT and ref[hk]["ratio"] is None
+    assert ref[("1/2", "1/2")]["status"] == "" and ref[("1/2", "1/2")]["ratio"] != pytest.approx(1.0)
+    # breaking the glide (one C atom moved along a1) lifts the extinction
+    broken = ideal.copy()
+    c0 = np.flatnonzero(broken.numbers == 6)[0]
+    broken.positions[c0, 0] += 0.1
+    comp = compare_slab_patterns(broken, ideal, 120.0, theta_max=40.0, domains=False)
+    half = comp.relaxed.index_of("1/2", 0)
+    assert comp.status[half] == APPEARS
