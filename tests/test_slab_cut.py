@@ -305,6 +305,16 @@ def test_terminations_of_compounds():
     assert len(terminations(RU, (1, 0, -1, 0))) == 2
 
 
+def test_charges_that_leave_the_bulk_charged_are_refused():
+    # Regression: --charges Pt=1 was accepted and Pt(111) reported as Tasker type 2 (every layer
+    # charged); formal charges must make the bulk neutral (Tasker 1979).
+    with pytest.raises(StructureError, match="leave the bulk unit charged"):
+        terminations(CU, (1, 1, 1), charges={"Cu": 1})
+    with pytest.raises(StructureError, match="add up to zero"):
+        terminations(NACL, (1, 1, 1), charges={"Na": 1, "Cl": -2})
+    assert terminations(NACL, (1, 1, 1), charges={"Na": 1, "Cl": -1})[0]["tasker_type"] == 3
+
+
 def test_symmetric_slabs_are_symmetric_for_spglib():
     caf2 = bulk_crystal("CaF2", "fluorite", a=5.46)
     t = terminations(caf2, (1, 1, 1))

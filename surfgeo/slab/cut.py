@@ -552,6 +552,13 @@ def terminations(face_or_bulk, miller=None, charges: dict[str, float] | None = N
             raise StructureError(
                 f"charges are missing for {', '.join(missing)}; give a charge for every element."
             )
+        net = sum(q[s] for s in face.basis_symbols)
+        if abs(net) > 1e-6:
+            raise StructureError(
+                f"the formal charges {', '.join(f'{s}={q[s]:g}' for s in sorted(set(face.basis_symbols)))} "
+                f"leave the bulk unit charged ({net:+g} per cell); give charges that add up to zero, "
+                "e.g. Sr=2,Ti=4,O=-2."
+            )
     bulk_counts = Counter(face.basis_symbols)
     gcount = math.gcd(*bulk_counts.values())
     bulk_ratio = {s: c / gcount for s, c in bulk_counts.items()}
