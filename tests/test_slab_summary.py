@@ -52,3 +52,22 @@ def test_summary_of_a_foreign_slab():
     assert sm["n_layers"] == 4 and sm["atoms_per_layer"] == [6] * 4
     assert sm["miller"] is None
     assert sm["vacuum_gap"] == pytest.approx(10.0)
+
+
+def test_model_builds_name_their_model_adsorbates_and_films():
+    # Regression: building an incommensurate-film model printed "4 atoms (Pt4)" with no word about
+    # the film, which is not written as atoms; the summary now says so.
+    from pathlib import Path
+
+    from surfgeo.slab.model import build_model
+
+    lib = Path(__file__).resolve().parent.parent / "structures"
+    sm = slab_summary(build_model(lib / "pt111_graphene_incommensurate.toml"), symmetry=False)
+    assert sm["overlayers"][0]["outcome"] == "incommensurate" and sm["formula"] == "Pt4"
+    text = format_summary(sm)
+    assert "no film atoms are written" in text and "(synthetic)" in text
+    sm = slab_summary(build_model(lib / "ni100_c_p4g.toml"), symmetry=False)
+    text = format_summary(sm)
+    assert "reconstruction: clock-rotation, plane group p4g" in text
+    assert "adsorbate: C x2 on fourfold-hollow, coverage 1/2 ML" in text
+    assert slab_summary(surface_slab("Pt", (1, 1, 1), layers=3), symmetry=False)["overlayers"] == []

@@ -47,7 +47,9 @@ def slab_summary(atoms, symmetry: bool | None = None, symprec: float = 1e-3) -> 
         along the normal between the slab and its periodic image), ``termination``,
         ``step_notation`` (None for a flat face), ``terrace_width`` and ``step_height``
         (Angstrom or None), ``miscut_deg`` (0 for a flat face), ``step`` (the full step
-        description), ``relaxations``, ``provenance`` and, when computed, ``symmetry``.
+        description), ``relaxations``, ``provenance``, ``model`` (the model file's record or
+        None), ``reconstructions``, ``adsorbates`` and ``overlayers`` (the records of a model
+        build, empty lists otherwise) and, when computed, ``symmetry``.
     """
     info = surface_info(atoms)
     lat = Lattice2D(info.surface_cell, "surface")
@@ -107,6 +109,10 @@ def slab_summary(atoms, symmetry: bool | None = None, symprec: float = 1e-3) -> 
         "step": step,
         "relaxations": info.relaxations,
         "provenance": info.provenance,
+        "model": info.extra.get("model"),
+        "reconstructions": info.extra.get("reconstructions") or [],
+        "adsorbates": info.extra.get("adsorbates") or [],
+        "overlayers": info.extra.get("overlayers") or [],
     }
     if symmetry is None:
         symmetry = len(atoms) <= 5000
@@ -137,6 +143,10 @@ def format_summary(summary: dict) -> str:
         if bulk.get("c") and bulk.get("structure") in ("hcp", "wurtzite"):
             head += f", c = {bulk['c']:.4f} A"
     lines.append(head)
+    model = summary.get("model") or {}
+    if model.get("name"):
+        lines.append(f"model: {model['name']}" + (" (synthetic)" if model.get("synthetic") else "")
+                     + (f", from {model['file']}" if model.get("file") else ""))
     a1, a2 = sl["lengths"]
     lines.append(
         f"surface lattice: {sl['kind']}, |a1| = {a1:.4f} A, |a2| = {a2:.4f} A, "
@@ -184,6 +194,24 @@ def format_summary(summary: dict) -> str:
             f"{k} {c['value']:+g}{'%' if c['unit'] == '%' else ' A'}" for k, c in rel["changes"].items()
         )
         lines.append(f"relaxed ({rel['side']}): {ch}")
+    for rec in summary.get("reconstructions") or []:
+        lines.append(f"reconstruction: {rec.get('type', '?')}"
+                     + (f", plane group {rec['plane_group']} afterwards" if rec.get("plane_group") else ""))
+    for ads in summary.get("adsorbates") or []:
+        where = ads.get("site") or "given positions"
+        lines.append(f"adsorbate: {ads.get('species')} x{ads.get('count')} on {where}"
+                     + (f", coverage {ads['coverage']} ML" if ads.get("coverage") else ""))
+    for film in summary.get("overlayers") or []:
+        text = f"overlayer {film.get('name', 'film')!r}: {film.get('outcome')}"
+        co = film.get("coincidence") or {}
+        if film.get("outcome") == "incommensurate":
+            text += ("; no film atoms are written, the film is kept as its own lattice in the surface "
+                     "record (.extxyz)")
+            if co.get("substrate_cells"):
+                text += f"; smallest coincidence cell {co['substrate_cells']} substrate cells"
+        else:
+            text += f", {film.get('atoms_added', 0)} atoms added"
+        lines.append(text)
     return "\n".join(lines)
 
 
