@@ -245,7 +245,7 @@ def test_help_documents_the_reference_comparison(capsys):
     out = " ".join(capsys.readouterr().out.split())
     assert "--reference IDEAL" in out and "surfgeo pattern CONTCAR --reference" in out
     # every key of the JSON reference block is named in the help
-    for key in ("matching", "largest_changes", "relative_change", "status", "mean_ratio", "correlation",
-                "peak_eV_relaxed", "peak_eV_ideal", "strongest", "intensity_reference"):
+    for key in ("relaxed_file", "matching", "largest_changes", "relative_change", "status", "mean_ratio",
+                "correlation", "peak_eV_relaxed", "peak_eV_ideal", "strongest", "intensity_reference"):
         assert key in out, key
     assert "qualitative for LEED" in out

@@ -45,7 +45,7 @@ when they are not the same system; both patterns use the same beams, energy, inc
 domains and kinematic settings, with intensities in the same units. The text lists every
 beam with I_relaxed, I_ideal, their ratio and relative change, then the beams that changed
 most (ranked by |ln ratio|; beams extinct in one structure only first). The JSON gains a
-"reference" block: matching {method, max_displacement_A, max_displacement_atom,
+"reference" block: file, relaxed_file, matching {method, max_displacement_A, max_displacement_atom,
 rms_displacement_A, note}, domains (of the ideal structure), beams (in the order of the
 top-level beams: hk, intensity, extinct, ratio, relative_change, status = appears |
 vanishes | extinct in both | ""), largest_changes (groups of equivalent beams: beams, ratio,
