@@ -272,6 +272,14 @@ def test_rectangular_cells():
     assert a2 / a1 == pytest.approx(math.sqrt(3))
     assert abs(hexagonal.cell[0, :2] @ hexagonal.cell[1, :2]) < 1e-9
     assert len(hexagonal) == 6
+    # Regression: the rectangular cell used to be [[-1, -1], [1, -1]], which turned the recorded
+    # 1x1 cell so that a1 no longer lay along +x. Derived by hand: b1 = a1 and b2 = a1 + 2 a2 is
+    # the a x a sqrt(3) rectangle of the 120 degree basis.
+    rec = hexagonal.info["surfgeo"]
+    assert rec["supercell_matrix"] == [[1, 0], [1, 2]]
+    assert rec["surface_cell"][0][1] == pytest.approx(0.0, abs=1e-12) and rec["surface_cell"][0][0] > 0
+    M, A = np.array(rec["supercell_matrix"]), np.array(rec["surface_cell"])
+    assert np.allclose(M @ A, hexagonal.cell[:2, :2])
     bcc = surface_slab("Fe", (1, 1, 0), layers=3, rectangular=True)
     assert abs(bcc.cell[0, :2] @ bcc.cell[1, :2]) < 1e-9
     # Common practice, no source: bcc(110) centred cell is a x a sqrt(2)

@@ -615,7 +615,12 @@ def terminations(face_or_bulk, miller=None, charges: dict[str, float] | None = N
 
 # ---------------------------------------------------------------------------------- slabs
 def _rectangular_matrix(A: np.ndarray) -> np.ndarray:
-    """Smallest integer M with M @ A rectangular (right-handed, shorter vector first)."""
+    """Smallest integer M with M @ A rectangular (right-handed, shorter vector first).
+
+    Among cells of the same size, b1 parallel to a1 is preferred (then the smallest turn of
+    b1 away from a1, then non-negative entries), so that on a hexagonal lattice the 1x1 cell
+    keeps a1 along +x: M = [[1, 0], [1, 2]].
+    """
     r = range(-3, 4)
     vecs = [(np.array([i, j]), np.array([i, j]) @ A) for i in r for j in r if (i, j) != (0, 0)]
     area = abs(float(np.linalg.det(A)))
@@ -627,7 +632,9 @@ def _rectangular_matrix(A: np.ndarray) -> np.ndarray:
         if abs(float(v1 @ v2)) > 1e-6 * float(np.linalg.norm(v1) * np.linalg.norm(v2)):
             continue
         n = round(det / area)
-        key = (n, round(float(np.linalg.norm(v1)), 6), round(float(np.linalg.norm(v2)), 6))
+        turn = abs(math.atan2(A[0, 0] * v1[1] - A[0, 1] * v1[0], float(A[0] @ v1)))
+        key = (n, round(float(np.linalg.norm(v1)), 6), round(float(np.linalg.norm(v2)), 6), round(turn, 6),
+               int(np.sum(m1 < 0) + np.sum(m2 < 0)))
         if np.linalg.norm(v1) > np.linalg.norm(v2) * (1 + 1e-9):
             continue
         if best is None or key < best[0]:
