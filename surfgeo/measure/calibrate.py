@@ -435,6 +435,11 @@ def _evaluate(
     return h
 
 
+#: Inversion partners found per centre, for the spot tree in use (the score of many hypotheses
+#: sharing a centre needs them once).
+_PARTNERS: dict = {}
+
+
 def _centre_terms(
     h: Hypothesis, P: np.ndarray, tree: cKDTree, screen: ScreenGeometry, guard: float
 ) -> tuple[int, int]:
@@ -456,12 +461,20 @@ def _centre_terms(
     rho = np.hypot(u[:, 0], u[:, 1])
     rim = float(screen.radial(np.array(math.radians(screen.acceptance_deg))))
     outside = int(np.sum(rho > rim * RIM_SLACK))
-    partner = 2.0 * c - P
-    r = np.linalg.norm(v, axis=1)
-    tol = 3.0 + 0.01 * r
-    d, _ = tree.query(partner, k=1, distance_upper_bound=float(tol.max()) if len(tol) else 1.0)
-    found = d <= tol
-    expected = _inside(partner, screen, 3.0) & (r > guard + 3.0) & (rho <= rim)
+    key = (round(float(c[0]), 3), round(float(c[1]), 3))
+    cached = _PARTNERS.get(key) if _PARTNERS.get("tree") is tree else None
+    if cached is None:
+        partner = 2.0 * c - P
+        r = np.linalg.norm(v, axis=1)
+        tol = 3.0 + 0.01 * r
+        d, _ = tree.query(partner, k=1, distance_upper_bound=float(tol.max()) if len(tol) else 1.0)
+        cached = (d <= tol, _inside(partner, screen, 3.0) & (r > guard + 3.0))
+        if _PARTNERS.get("tree") is not tree:
+            _PARTNERS.clear()
+            _PARTNERS["tree"] = tree
+        _PARTNERS[key] = cached
+    found, usable = cached
+    expected = usable & (rho <= rim)
     return outside, int(found.sum() - (expected & ~found).sum())
 
 

@@ -419,22 +419,39 @@ def _context(P, cal: Calibration, lattice: Lattice2D, energy: float, gate_px, si
     return _Context(P, h, J, ok, integer_dist, screen, E, k, lattice, sigma, gate, cal.energy_offset)
 
 
-def _hnf_residuals(ctx: _Context, table: _Table, chunk: int = 64) -> np.ndarray:
-    """(K, N) px distance from each measured spot to the nearest label of each superlattice."""
+def _hnf_residuals(ctx: _Context, table: _Table, chunk: int = 128) -> np.ndarray:
+    """(K, N) px distance from each measured spot to the nearest label of each superlattice.
+
+    The spot's label is written in a reduced basis R of the superlattice's label lattice,
+    rounded, and the nine lattice points around it are compared in pixels through the local
+    Jacobian (``d_px = J R^T (v - n)``), which finds the nearest point for a reduced basis.
+    """
     K, N = len(table.hnf), len(ctx.h)
     out = np.empty((K, N))
-    off = np.array([(i, j) for i in (-1, 0, 1) for j in (-1, 0, 1)], dtype=float)  # (9, 2)
+    h0, h1 = ctx.h[:, 0], ctx.h[:, 1]
+    J = ctx.J
+    offs = [(i, j) for i in (-1.0, 0.0, 1.0) for j in (-1.0, 0.0, 1.0)]
     for s in range(0, K, chunk):
-        Rinv = table.basis_inv[s : s + chunk]  # (k, 2, 2)
+        Ri = table.basis_inv[s : s + chunk]  # (k, 2, 2)
         R = table.basis[s : s + chunk]
-        v = np.einsum("nj,kji->kni", ctx.h, Rinv)  # coords in the reduced basis
-        base = np.rint(v)
-        cand = base[:, :, None, :] + off[None, None, :, :]  # (k, N, 9, 2)
-        lab = np.einsum("knmj,kji->knmi", cand, R)
-        diff = ctx.h[None, :, None, :] - lab
-        px = np.einsum("nij,knmj->knmi", ctx.J, diff)
-        d = np.sqrt(np.sum(px * px, axis=-1)).min(axis=-1)
-        out[s : s + chunk] = d
+        v0 = h0[None, :] * Ri[:, 0, 0, None] + h1[None, :] * Ri[:, 1, 0, None]
+        v1 = h0[None, :] * Ri[:, 0, 1, None] + h1[None, :] * Ri[:, 1, 1, None]
+        f0 = v0 - np.rint(v0)
+        f1 = v1 - np.rint(v1)
+        # M = J R^T, per (k, n): d_px = M (f - o)
+        m00 = J[None, :, 0, 0] * R[:, 0, 0, None] + J[None, :, 0, 1] * R[:, 0, 1, None]
+        m01 = J[None, :, 0, 0] * R[:, 1, 0, None] + J[None, :, 0, 1] * R[:, 1, 1, None]
+        m10 = J[None, :, 1, 0] * R[:, 0, 0, None] + J[None, :, 1, 1] * R[:, 0, 1, None]
+        m11 = J[None, :, 1, 0] * R[:, 1, 0, None] + J[None, :, 1, 1] * R[:, 1, 1, None]
+        best = None
+        for o0, o1 in offs:
+            a = f0 - o0
+            b = f1 - o1
+            x = m00 * a + m01 * b
+            y = m10 * a + m11 * b
+            d2 = x * x + y * y
+            best = d2 if best is None else np.minimum(best, d2)
+        out[s : s + chunk] = np.sqrt(best)
     out[:, ~ctx.ok] = np.inf
     return out
 
@@ -704,8 +721,18 @@ def _fractional_unexplained(ctx: _Context, best_resid: np.ndarray) -> np.ndarray
     return np.flatnonzero(ctx.ok & (best_resid > ctx.gate) & (ctx.integer_dist > ctx.gate))
 
 
-def _nice_matrix(lattice: Lattice2D, orb: _Orbit) -> tuple[np.ndarray, list]:
-    """A reduced-basis matrix per domain, and the representative (simplest) one."""
+def _nice_matrix(lattice: Lattice2D, orb: _Orbit) -> tuple[np.ndarray, list, str | None]:
+    """The representative matrix, one reduced-basis matrix per domain, and the Wood form.
+
+    The representative is the matrix of the preferred Wood form over all domains (unrotated,
+    primitive, smallest rotation, then the larger first factor as in "(2×1)" and "c(4×2)"), so
+    that (2×1) reads [[2, 0], [0, 1]]; without a Wood form, the simplest reduced-basis matrix.
+    """
+    from surfgeo.lattice.wood import matrix_to_wood, wood_to_matrix
+
+    def preference(f):  # unrotated, primitive, smallest angle; among domains the larger p first
+        return (f.rotated, f.centred, round(abs(f.angle), 7), f.angle < 0, -float(f.p), float(f.q))
+
     mats = []
     A = lattice.vectors
     for a, b, d in orb.hnfs:
@@ -716,7 +743,23 @@ def _nice_matrix(lattice: Lattice2D, orb: _Orbit) -> tuple[np.ndarray, list]:
     def key(M):
         return (int(np.sum(M < 0)), int(np.abs(M).sum()), -int(M[0, 0]), tuple(M.ravel().tolist()))
 
-    return min(mats, key=key), mats
+    forms = []
+    for M in mats:
+        try:
+            forms.extend(matrix_to_wood(lattice, M))
+        except InputError:  # pragma: no cover - defensive
+            continue
+    if forms:
+        wood = min(forms, key=preference)
+        try:
+            W = wood_to_matrix(lattice, wood)
+            if all(v.denominator == 1 for v in np.asarray(W, dtype=object).ravel()):
+                Wi = np.array([[int(v) for v in row] for row in W], dtype=np.int64)
+                return Wi, mats, wood.unicode
+        except InputError:  # pragma: no cover - defensive
+            pass
+        return min(mats, key=key), mats, wood.unicode
+    return min(mats, key=key), mats, None
 
 
 def _labels_of(table: _Table, grids: dict, o: int) -> tuple[np.ndarray, np.ndarray, list]:
@@ -730,13 +773,7 @@ def _labels_of(table: _Table, grids: dict, o: int) -> tuple[np.ndarray, np.ndarr
 
 def _make_candidate(ctx, table, grids, o, scores, matched, absent, rms, n_spots) -> IndexCandidate:
     orb = table.orbits[o]
-    M, mats = _nice_matrix(ctx.lattice, orb)
-    wood = None
-    try:
-        w = Superstructure(ctx.lattice, M).wood()
-        wood = w.unicode if w is not None else None
-    except InputError:  # pragma: no cover - defensive
-        wood = None
+    M, mats, wood = _nice_matrix(ctx.lattice, orb)
     px, _, labels = _labels_of(table, grids, o)
     return IndexCandidate(
         kind="commensurate",
@@ -790,12 +827,11 @@ def _group(ctx, table: _Table, grids: dict, candidates: list, scores, matched, v
         out = []
         for o, every in [(o, True) for o in same_sig] + [(o, False) for o in same_vis]:
             orb = table.orbits[o]
-            M, mats = _nice_matrix(ctx.lattice, orb)
-            w = Superstructure(ctx.lattice, M).wood()
+            M, mats, wood = _nice_matrix(ctx.lattice, orb)
             out.append(
                 {
                     "matrix": _plain_matrix(M),
-                    "wood": w.unicode if w is not None else None,
+                    "wood": wood,
                     "domains": len(mats),
                     "area": orb.area,
                     "score": float(scores[o]),

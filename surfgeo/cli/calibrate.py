@@ -1,0 +1,371 @@
+"""``surfgeo calibrate``: fit the screen geometry from the substrate's integer-order spots.
+
+Also holds the input handling shared by ``calibrate``, ``match`` and ``index``: a spot list
+(CSV, pixels or momenta) or an image (spots found with the detector), the energy, and the
+screen model with its nominal geometry.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+
+ORDER = 52
+
+EPILOG = """\
+The integer-order spots of the substrate are recognised among fractional-order and stray
+spots without a starting guess of the centre, rotation or mirror (the (00) spot may be
+hidden by the gun): candidate centres come from the inversion symmetry of the spots, each
+spot is tried as each short integer beam, the best hypotheses are refined, and the screen
+parameters (centre, scale, rotation, mirror, ellipticity, and for the camera model the
+camera distance) are fitted by robust least squares. Only the rough size of the pattern must
+be right: the scale is searched within 25 % of the nominal scale of --screen (by default the
+image size and a 55 degree acceptance). With several inputs at different energies the scale
+and an energy offset (E_true = E_nominal + offset, e.g. the contact potential) are fitted
+jointly.
+
+Inputs are spot lists (CSV with columns x,y in pixels, x right, y down, centre of the
+top-left pixel at 0,0) or images (PNG/TIFF; spots are found as by 'surfgeo detect'). The
+JSON output is the calibration: reuse it with 'surfgeo match --calibration FILE' or
+'surfgeo index --calibration FILE'.
+
+examples:
+  surfgeo calibrate spots.csv --lattice hex:2.77 --energy 96 --screen sphere:size=1024 \\
+      --json screen.json --plot calibration.png
+      fits the screen from one spot list and saves the calibration
+
+  surfgeo calibrate e80.png e120.png e160.png --lattice "Pt(111)" --energy 80 120 160 --json -
+      joint fit of three images of the same screen, with the energy offset
+"""
+
+
+# =============================================================================== shared input
+@dataclass
+class Measurement:
+    """Spots read from one input, with the nominal screen to calibrate against."""
+
+    positions: object  # ndarray (N, 2), px
+    source: str
+    screen: object  # ScreenGeometry (nominal)
+    image: object = None  # ndarray (H, W) or None
+    momentum: bool = False
+    calibration: object = None  # a fixed Calibration for momentum lists
+    notes: list = field(default_factory=list)
+
+
+def add_input_options(p: argparse.ArgumentParser, multiple: bool = False) -> None:
+    """The input(s), --lattice, --energy and --screen."""
+    from surfgeo.cli._common import add_lattice_option
+
+    if multiple:
+        p.add_argument(
+            "inputs",
+            nargs="+",
+            metavar="SPOTS.csv|IMAGE",
+            help="spot lists (CSV, columns x,y in px) or images (PNG/TIFF), one per energy",
+        )
+    else:
+        p.add_argument(
+            "input",
+            metavar="SPOTS.csv|IMAGE",
+            help="spot list (CSV with columns x,y in px, or kx,ky in 1/Å) or image (PNG/TIFF)",
+        )
+    add_lattice_option(p)
+    p.add_argument(
+        "--energy",
+        required=True,
+        nargs="+" if multiple else None,
+        metavar="EV",
+        help="beam energy in eV" + (" (one per input)" if multiple else ""),
+    )
+    p.add_argument(
+        "--screen",
+        default=None,
+        metavar="SPEC",
+        help="screen model and nominal geometry: sphere (hemispherical screen seen from afar, the "
+        "default), camera or flat, with settings such as size=WxH, accept=DEG, shadow=PX, scale=, "
+        "dist= (see 'surfgeo pattern --help'); the size defaults to the image's",
+    )
+
+
+def add_contrast_option(p: argparse.ArgumentParser) -> None:
+    """``--contrast LO HI [FLATTEN]`` for the overlay figure."""
+    p.add_argument(
+        "--contrast",
+        nargs="+",
+        type=float,
+        default=None,
+        metavar="V",
+        help="figure contrast: image percentiles LO HI shown black and white (default 2 99.8), and "
+        "optionally the width in px of the glow removed before (default 12; 0 shows the raw image)",
+    )
+
+
+def contrast_kwargs(args) -> dict:
+    """Keyword arguments of the overlay figure from ``--contrast``."""
+    from surfgeo.errors import InputError
+
+    c = getattr(args, "contrast", None)
+    if not c:
+        return {}
+    if len(c) not in (2, 3) or not (0 <= c[0] < c[1] <= 100) or (len(c) == 3 and not c[2] >= 0):
+        raise InputError(
+            "--contrast takes two percentiles 0 <= LO < HI <= 100 and optionally a glow width "
+            f">= 0 px, got {' '.join(f'{v:g}' for v in c)}."
+        )
+    out = {"contrast": (c[0], c[1])}
+    if len(c) == 3:
+        out["flatten"] = c[2] or None
+    return out
+
+
+def parse_energy(text, what: str = "--energy") -> float:
+    """A positive, finite energy in eV, or an InputError naming the option."""
+    from surfgeo.errors import InputError
+
+    try:
+        e = float(text)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} must be a number of eV, got {text!r}.") from None
+    if not math.isfinite(e) or e <= 0:
+        raise InputError(f"{what} must be a positive number of eV, got {text!r}.")
+    return e
+
+
+def _is_csv(path: Path) -> bool:
+    return path.suffix.lower() in (".csv", ".txt", ".tsv", ".dat")
+
+
+def load_measurement(path: str, screen_spec: str | None, energy: float | None = None) -> Measurement:
+    """Read one input: a spot-list CSV (pixels or momenta) or an image (spots detected).
+
+    The nominal screen is ``screen_spec``; for an image whose size the spec does not state,
+    the image's size is used, and when the detector's mask finds the screen disc and the spec
+    gives no scale, the nominal scale follows from the disc radius and the acceptance.
+    """
+    import numpy as np
+
+    from surfgeo.errors import FileFormatError, InputError
+    from surfgeo.measure.spotlist import MomentumSpotList
+    from surfgeo.screen import parse_screen
+
+    p = Path(path)
+    spec = screen_spec or "sphere"
+    explicit = {k.strip().split("=")[0].lower() for k in spec.partition(":")[2].split(",") if k.strip()}
+    if _is_csv(p):
+        from surfgeo.io.spots import read_spot_csv
+
+        spots = read_spot_csv(p)
+        if isinstance(spots, MomentumSpotList):
+            return _momentum_measurement(spots, str(p), energy)
+        screen = parse_screen(spec)
+        P = spots.positions
+        outside = (
+            np.flatnonzero(
+                (P[:, 0] < -0.5)
+                | (P[:, 0] > screen.width - 0.5)
+                | (P[:, 1] < -0.5)
+                | (P[:, 1] > screen.height - 0.5)
+            )
+            if len(P)
+            else []
+        )
+        if len(outside):
+            i = int(outside[0])
+            raise InputError(
+                f"{p}: spot {i + 1} at ({P[i, 0]:g}, {P[i, 1]:g}) px lies outside the "
+                f"{screen.width}x{screen.height} "
+                "px image of the screen spec; give the image size with --screen sphere:size=WxH."
+            )
+        return Measurement(P, str(p), screen)
+    # an image
+    from surfgeo.measure.detect import detect_spots
+    from surfgeo.measure.images import read_image
+    from surfgeo.measure.masks import build_mask
+
+    if not p.exists():
+        raise FileFormatError(f"{p} does not exist; give a spot-list CSV file or a PNG/TIFF image.")
+    image = read_image(p)
+    h, w = image.shape
+    if h < 16 or w < 16:
+        raise FileFormatError(f"{p} is only {w}x{h} pixels; a LEED image needs at least 16x16.")
+    masks = build_mask(image.data, screen="auto", gun="auto")
+    det = detect_spots(image, mask=masks.usable)
+    notes = list(det.notes)
+    if "size" not in explicit and not spec.lower().endswith(".json"):
+        spec = spec + ("," if ":" in spec else ":") + f"size={w}x{h}"
+    screen = parse_screen(spec)
+    if masks.screen is not None and "scale" not in explicit and not spec.lower().endswith(".json"):
+        rho = float(screen.radial(np.array(math.radians(screen.acceptance_deg))))
+        screen = screen.with_params(scale=masks.screen.radius / rho)
+        notes.append(
+            f"nominal scale {screen.scale:.1f} px/rad from the screen disc found in the image "
+            f"(radius {masks.screen.radius:.1f} px, acceptance {screen.acceptance_deg:g} degrees)."
+        )
+    return Measurement(det.spots.positions, str(p), screen, image=image.data, notes=notes)
+
+
+def _momentum_measurement(spots, source: str, energy: float | None) -> Measurement:
+    """Momenta become positions on a virtual far screen (1000 px per radian) with a known
+    calibration, so that matching and indexing work unchanged."""
+    import numpy as np
+
+    from surfgeo.diffraction.electron import wavenumber
+    from surfgeo.errors import InputError
+    from surfgeo.measure.calibrate import Calibration, fast_pixels
+    from surfgeo.screen import FarScreen
+
+    if energy is None:
+        raise InputError("a momentum-space spot list needs the beam energy (--energy).")
+    k = wavenumber(energy)
+    K = spots.momenta
+    if len(K) and np.max(np.hypot(K[:, 0], K[:, 1])) >= k:
+        raise InputError(
+            f"{source}: a spot has |k_parallel| above the wavenumber {k:.3f} 1/Å at {energy:g} eV; "
+            "check the units (1/Å with 2 pi) and the energy."
+        )
+    scale = 1000.0
+    size = int(2 * scale + 3)
+    screen = FarScreen(
+        centre_x=(size - 1) / 2,
+        centre_y=(size - 1) / 2,
+        scale=scale,
+        acceptance_deg=89.9,
+        width=size,
+        height=size,
+    )
+    cal = Calibration(screen=screen, rms_px=scale * 0.01 / k, n_matched=0)
+    return Measurement(
+        fast_pixels(screen, K, energy),
+        source,
+        screen,
+        momentum=True,
+        calibration=cal,
+        notes=[
+            "momentum-space spot list: no screen calibration needed (virtual screen, 1000 px per radian)."
+        ],
+    )
+
+
+def check_outputs(args, *names: str) -> None:
+    """Output files must differ, be writable (or --force), and figures end in .png/.svg."""
+    from surfgeo.errors import InputError
+    from surfgeo.io import check_writable
+
+    outs = [getattr(args, n, None) for n in names]
+    outs = [o for o in outs if o and o != "-"]
+    if len(set(outs)) != len(outs):
+        raise InputError("the output options must name different files.")
+    for o in outs:
+        check_writable(o, args.force)
+    plot = getattr(args, "plot", None)
+    if plot and not plot.lower().endswith((".png", ".svg")):
+        raise InputError(f"--plot {plot!r} must end in .png or .svg.")
+
+
+def unicode_ok(stream) -> bool:
+    try:
+        "\u221a\u00d7\u00b0\u00c5".encode(getattr(stream, "encoding", None) or "ascii")
+    except (UnicodeEncodeError, LookupError):
+        return False
+    return True
+
+
+def write_report(lines: list[str]) -> None:
+    text = "\n".join(lines) + "\n"
+    if not unicode_ok(sys.stdout):
+        text = (
+            text.replace("\u221a", "sqrt")
+            .replace("\u00d7", "x")
+            .replace("\u00b0", " deg")
+            .replace("\u00c5", "A")
+            .replace("\u00b1", "+-")
+        )
+    sys.stdout.write(text)
+    sys.stdout.flush()
+
+
+# =============================================================================== the command
+def register(subparsers, common: argparse.ArgumentParser) -> None:
+    from surfgeo.cli._common import add_output_options
+
+    p = subparsers.add_parser(
+        "calibrate",
+        parents=[common],
+        help="fit the screen geometry from the integer-order spots",
+        description="Recognise the substrate's integer-order spots and fit the screen geometry (centre, "
+        "scale, rotation, mirror, ellipticity; energy offset from several energies).",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    add_input_options(p, multiple=True)
+    p.add_argument(
+        "--scale-tolerance",
+        type=float,
+        default=None,
+        metavar="FRACTION",
+        help="relative window around the nominal scale searched (default 0.25)",
+    )
+    add_output_options(p, plot=True)
+    add_contrast_option(p)
+    p.set_defaults(func=run)
+
+
+def calibration_lines(cal, lattice, energies) -> list[str]:
+    s = cal.screen
+    lines = [
+        f"screen       {s.kind} model, {s.width}x{s.height} px, acceptance {s.acceptance_deg:g} deg",
+        *(f"             {line}" for line in cal.describe().splitlines()),
+        f"energies     {', '.join(f'{e:g}' for e in energies)} eV"
+        + (f" (true = nominal {cal.energy_offset:+.2f} eV)" if cal.fitted_energy_offset else ""),
+    ]
+    return lines
+
+
+def run(args: argparse.Namespace) -> int:
+    from surfgeo.cli._common import resolve_lattice
+    from surfgeo.errors import InputError
+    from surfgeo.io import dump_json
+    from surfgeo.measure.calibrate import SCALE_TOLERANCE, calibrate_series
+
+    check_outputs(args, "json", "plot")
+    contrast_kwargs(args)
+    lattice = resolve_lattice(args.lattice)
+    energies = [parse_energy(e) for e in args.energy]
+    if len(energies) != len(args.inputs):
+        raise InputError(
+            f"give one --energy per input: {len(args.inputs)} input(s) but {len(energies)} energies."
+        )
+    tol = SCALE_TOLERANCE if args.scale_tolerance is None else args.scale_tolerance
+    if not (math.isfinite(tol) and 0 < tol < 1):
+        raise InputError(f"--scale-tolerance must be a fraction between 0 and 1, got {tol}.")
+    meas = [load_measurement(path, args.screen, e) for path, e in zip(args.inputs, energies, strict=True)]
+    for m in meas:
+        if m.momentum:
+            raise InputError(
+                f"{m.source} lists momenta (kx, ky); a momentum-space list needs no calibration."
+            )
+    screen = meas[0].screen
+    cal = calibrate_series([m.positions for m in meas], lattice, energies, screen, scale_tolerance=tol)
+    record = cal.to_dict()
+    record["inputs"] = [m.source for m in meas]
+    if args.json != "-":
+        lines = [f"input        {', '.join(m.source for m in meas)}"]
+        lines += calibration_lines(cal, lattice, energies)
+        for m in meas:
+            lines += [f"note         {n}" for n in m.notes]
+        write_report(lines)
+    if args.json:
+        dump_json(record, args.json, force=args.force)
+    if args.plot:
+        from surfgeo.plot import save_figure
+        from surfgeo.plot.overlay import calibration_figure
+
+        fig = calibration_figure(
+            cal, meas[0].positions, lattice, energies[0], image=meas[0].image, **contrast_kwargs(args)
+        )
+        save_figure(fig, args.plot, force=args.force)
+    return 0
