@@ -21,7 +21,8 @@ ignored; both are looked for automatically unless given (--screen, --gun) or swi
 
 Columns of the spot list: x, y (px), intensity and intensity_error (image units above the
 local background, summed within 3 spot widths), sigma (spot width, px), snr (signal-to-noise
-ratio), uncertainty (standard error of x and of y, px), saturated and edge (0/1).
+ratio), uncertainty (standard error of x and of y, px), saturated and edge (0/1). Spots with
+snr of at least 5 are reliable; below that a few noise peaks may be listed.
 
 examples:
   surfgeo detect pattern.png -o spots.csv --plot spots.png
@@ -53,7 +54,8 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
     p.add_argument("--spot-sigma", type=float, metavar="PX",
                    help="Gaussian width of the spots in px (default: measured on the brightest spots)")
     p.add_argument("--threshold", type=float, default=None, metavar="K",
-                   help="keep maxima at least K robust noise units above the background (default 5)")
+                   help="keep maxima at least K robust noise units above the background (default 4.5; "
+                   "pure noise then gives a few maxima per million pixels, all with snr below 5)")
     p.add_argument("--screen", default="auto", metavar="auto|none|X,Y,R",
                    help="the visible screen disc: centre and radius in px (default: auto)")
     p.add_argument("--gun", default="auto", metavar="auto|none|X,Y,R[,ANGLE,WIDTH]",
