@@ -219,15 +219,21 @@ def test_frames_of_a_trajectory(files, capsys):
         frames.append(f)
     ase.io.write(files / "traj.extxyz", frames)
     traj = files / "traj.extxyz"
-    assert read_structure(traj).positions[0, 2] == pytest.approx(frames[2].positions[0, 2])
-    assert read_structure(traj, 0).positions[0, 2] == pytest.approx(frames[0].positions[0, 2])
-    assert read_structure(traj, -2).positions[0, 2] == pytest.approx(frames[1].positions[0, 2])
+    # Regression (test honesty): atom 0 is a bottom-layer atom, equal in every frame, so comparing
+    # it could not tell the frames apart; compare a top-layer atom, which moves 0.01 A per frame.
+    top = int(np.nonzero(ref.get_tags() == 1)[0][0])
+    heights = [f.positions[top, 2] for f in frames]
+    assert min(np.diff(heights)) > 0.009
+    assert read_structure(traj).positions[top, 2] == pytest.approx(heights[2], abs=1e-9)
+    assert read_structure(traj, 0).positions[top, 2] == pytest.approx(heights[0], abs=1e-9)
+    assert read_structure(traj, -2).positions[top, 2] == pytest.approx(heights[1], abs=1e-9)
     for bad in (3, -4):
         with pytest.raises(FileFormatError, match="holds 3 frame"):
             read_structure(files / "traj.extxyz", bad)
     assert main(["relaxations", str(files / "traj.extxyz"), "--frame", "0", "--reference",
                  str(files / "ref.extxyz"), "--json", "-"]) == 0
     data = json.loads(capsys.readouterr().out)
+    # Source: the displacement applied to frame 0 (top layer up by 0.01 A)
     assert data["spacings"][0]["delta"] == pytest.approx(0.01, abs=1e-6)
     assert main(["relaxations", str(files / "traj.extxyz"), "--frame", "7", "--reference",
                  str(files / "ref.extxyz")]) == 2
@@ -259,4 +265,5 @@ def test_export_then_relaxations_round_trip(files, capsys):
     data = json.loads(capsys.readouterr().out)
     assert data["fixed_atoms"] == 8 and data["fixed_max_displacement"] == pytest.approx(0.0, abs=1e-9)
     dz = {x["number"]: x["dz"] for x in data["layers"]}
+    # Source: the displacement applied above (free atoms down by 0.02 A, fixed layers unmoved)
     assert dz[1] == pytest.approx(-0.02, abs=1e-9) and dz[4] == pytest.approx(0.0, abs=1e-9)

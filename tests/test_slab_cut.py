@@ -78,9 +78,10 @@ def _match_any_termination(bulk, miller, nlayers, reference) -> dict:
         fp = fingerprint(ours)
         found.append(fp)
         keys = ("spacings", "area_per_atom", "registry")
-        same = all(np.allclose(fp[k], fp_ref[k], atol=2e-3) for k in keys)
+        # the fingerprints are rounded to 1e-4 A, so two equal structures differ by at most 1e-4
+        same = all(np.allclose(fp[k], fp_ref[k], atol=2e-4) for k in keys)
         same_shells = all(
-            np.allclose(a, b, atol=2e-3) for a, b in zip(fp["shells"], fp_ref["shells"], strict=True)
+            np.allclose(a, b, atol=2e-4) for a, b in zip(fp["shells"], fp_ref["shells"], strict=True)
         )
         if same and same_shells:
             return fp
