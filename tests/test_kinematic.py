@@ -351,6 +351,7 @@ def test_partial_wave_amplitudes_in_the_sum():
 def test_isotropic_default_and_overrides():
     pos = np.array([[0.0, 0.0, 0.0]])
     kw = dict(temperature=None, attenuation=math.inf)
+    # the documented model choice (no source): default amplitude f = Z ** 0.5, so I = Z for one atom
     assert kinematic_intensities(pos, [29], [[0.0, 0.0]], 80.0, **kw)[0] == pytest.approx(29.0)
     assert kinematic_intensities(pos, [29], [[0.0, 0.0]], 80.0, amplitudes={"Cu": 2.0}, **kw)[0] == 4.0
     iso = IsotropicAmplitudes({29: 1 + 1j}, exponent=0.0)

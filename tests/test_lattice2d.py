@@ -52,6 +52,7 @@ def test_hexagonal_default_is_120_degrees():
 
 def test_reciprocal_includes_two_pi():
     lat = parse_lattice("oblique:2.1,3.3,71")
+    # Common practice, no source: the reciprocal basis with 2 pi, a_i . b_j = 2 pi delta_ij
     assert np.allclose(lat.vectors @ lat.reciprocal.T, 2 * math.pi * np.eye(2))
     # |b| of a square lattice is 2 pi / a.  Common practice, no source.
     assert np.linalg.norm(parse_lattice("square:2.5").reciprocal[0]) == pytest.approx(
@@ -60,7 +61,8 @@ def test_reciprocal_includes_two_pi():
 
 
 def test_centred_rectangular_recognised_from_a_non_primitive_looking_basis():
-    # (1,0) and (0.5,2) span the centred cell (1,0),(0,4): centred rectangular.
+    # Derived by hand: (1,0) and (0.5,2) span the centred cell (1,0),(0,4): centred rectangular,
+    # whose holohedry 2mm has four operations (International Tables Vol. A).
     lat = Lattice2D.from_vectors([1, 0], [0.5, 2.0])
     assert lat.kind() == "centred-rectangular"
     assert len(lat.point_group()) == 4

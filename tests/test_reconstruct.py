@@ -103,6 +103,7 @@ def test_missing_row_1x2_fcc110_is_p2mm():
     # the (1x3) model: two rows of layer 1 and one row of layer 2 removed
     s3 = missing_row(slab, period=3, remove=[[0, 1], [0]], relax=[-0.1, 0.05])
     assert len(s3) == 3 * len(slab) - 3
+    # Common practice, no source: whole rows removed keep both mirror lines of fcc(110): p2mm
     assert plane_group(s3) == "p2mm"
     assert sites_are_stepped(s3)
 
@@ -143,6 +144,7 @@ def test_added_row_continues_the_bulk_stacking():
     assert s.positions[cu_new[0], 2] == pytest.approx(p_ref[2])
     o = [i for i in range(len(s)) if s[i].symbol == "O"]
     assert len(o) == 1 and s.arrays[ADSORBATE_KEY][o[0]] > 0
+    # Common practice, no source: O midway between added-row Cu atoms a = 3.61 A apart along [001]
     assert s.get_distance(o[0], cu_new[0], mic=True) == pytest.approx(3.61 / 2)
 
 

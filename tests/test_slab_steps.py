@@ -137,12 +137,15 @@ def test_kinked_faces():
 
 def test_ambiguous_family_form_is_written_out():
     # bcc (411): a (2-11) step; the family form "3(110)x(211)" would read back as (431)
+    # Derived from the rule of sources.md: 2 (1,1,0) + (2,-1,1) = (4,1,1); 2 (1,1,0) + (2,1,1) = (4,3,1)
     assert step_notation((4, 1, 1), "bcc") == "3(110)×(2-11)"
     assert miller_from_notation("3(110)×(2-11)", "bcc") == (4, 1, 1)
     assert miller_from_notation("3(110)×(211)", "bcc") == (4, 3, 1)
 
 
 def test_hcp_four_index():
+    # Derived from the rule of sources.md with g(0001) = (0,0,2), g(10-11) = (1,0,1):
+    # 2 (0,0,2) + (1,0,1) = (1,0,5), i.e. (1 0 -1 5) in four indices
     assert step_notation((1, 0, -1, 5), "hcp") == "3(0001)×(10-11)"
     assert miller_from_notation("3(0001)x(10-11)", "hcp") == (1, 0, -1, 5)
     assert step_notation((0, 0, 0, 1), "hcp") is None

@@ -31,6 +31,7 @@ EXPECT = {
     "ni100_s_c2x2.toml": ("p4mm", {"S": Fraction(1, 2)}, [[1, 1], [-1, 1]]),
     # Source: issue check list (missing-row (1x2) on fcc(110) -> p2mm)
     "au110_missing_row_1x2.toml": ("p2mm", {}, [[1, 0], [0, 2]]),
+    # Common practice, no source: removing whole rows ((1x3) as for (1x2)) keeps both mirrors: p2mm
     "pt110_missing_row_1x3.toml": ("p2mm", {}, [[1, 0], [0, 3]]),
     # Common practice, no source: (2x1) added rows with O between the Cu atoms keep both mirrors
     "cu110_added_row_o_2x1.toml": ("p2mm", {"O": Fraction(1, 2)}, [[2, 0], [0, 1]]),
@@ -39,11 +40,13 @@ EXPECT = {
     # Common practice, no source: n(111)x(100) faces have one mirror across the steps on a
     # centred lattice: cm
     "pt533_co_step_edge.toml": ("cm", {"CO": Fraction(1)}, [[1, 0], [0, 1]]),
+    # Common practice, no source: only the bare fcc(111) slab is built (the film is recorded): p3m1
     "pt111_graphene_incommensurate.toml": ("p3m1", {}, [[1, 0], [0, 1]]),
     # Common practice, no source: a film rotated off the mirror lines keeps only the 3-fold axes
     "pt111_graphene_sqrt7.toml": ("p3", {}, None),
     # From memory: ordered (sqrt3 x sqrt3)R30 substitutional alloys on fcc(111): p31m
     "cu111_sn_sqrt3_alloy.toml": ("p31m", {}, [[2, 1], [-1, 1]]),
+    # Common practice, no source: pairing rows of a square face keeps both mirror lines: p2mm
     "ag100_row_pairing_2x1.toml": ("p2mm", {}, [[1, 0], [0, 2]]),
     # Common practice, no source: one mirror (across the Pt-Pt bond) on a hexagonal lattice: cm
     "pt111_c2h4_bridge.toml": ("cm", {"C2H4": Fraction(1, 4)}, [[2, 0], [0, 2]]),
@@ -117,6 +120,7 @@ def test_details_of_selected_models(built):
     assert math.degrees(math.atan2(v[1], v[0])) == pytest.approx(30.0)
 
     # the sqrt7 coincidence cell holds 3x3 film cells (18 C)
+    # From memory: graphene on Pt(111) forms a (3x3) film cell on (sqrt7 x sqrt7)R19.1 of Pt
     s = built["pt111_graphene_sqrt7.toml"]
     assert s.get_chemical_symbols().count("C") == 18
     assert round(abs(np.linalg.det(s.info["surfgeo"]["supercell_matrix"]))) == 7

@@ -99,6 +99,8 @@ def test_geometry_vectors_reciprocal_and_exact_beam_basis():
     assert np.allclose(sup.vectors @ sup.reciprocal.T, 2 * math.pi * np.eye(2))
     assert sup.area == pytest.approx(7 * HEX.area)
     R = sup.reciprocal_matrix
+    # Derived by hand: beams of B = M A in the substrate reciprocal basis are the rows of
+    # (M^-1)^T = [[2, 1], [-1, 3]] / 7
     assert all(isinstance(v, Fraction) for v in R.flat)
     assert np.allclose(R.astype(float) @ HEX.reciprocal, sup.reciprocal)
     assert R[0, 0] == Fraction(2, 7)
@@ -107,6 +109,8 @@ def test_geometry_vectors_reciprocal_and_exact_beam_basis():
 def test_to_dict_has_exactly_the_command_keys():
     d = Superstructure(SQUARE, [[1, 1], [-1, 1]]).to_dict()
     assert list(d) == ["matrix", "wood", "wood_all", "determinant", "kind", "domains"]
+    # Source: shared/sources.md (Wood 1964): [[1,1],[-1,1]] = c(2x2) = (sqrt2 x sqrt2)R45 on a
+    # square lattice; R-45 and c(2x2)R90 describe the same lattice (the 4mm symmetry of the net).
     assert d == {
         "matrix": [[1, 1], [-1, 1]],
         "wood": "c(2×2)",

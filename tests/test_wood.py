@@ -230,6 +230,8 @@ def test_rounded_angle_snaps_to_the_exact_matrix():
 
 def test_non_integer_scale_and_rotation_is_incommensurate():
     sup = Superstructure.from_wood(HEX, "(1.5x1.5)R15")
+    # Common practice, no source (Park and Madden's classification): an irrational matrix is
+    # incommensurate, a rational non-integer one a coincidence structure; det = p q = 2.25
     assert sup.kind == "incommensurate"
     assert sup.wood().unicode == "(1.5×1.5)R15°"
     assert sup.determinant == pytest.approx(2.25)
