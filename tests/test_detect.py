@@ -301,6 +301,25 @@ def test_saturated_spot_flagged_and_still_located():
     assert np.hypot(det.spots.x[k] - 30.4, det.spots.y[k] - 33.7) < 0.1
 
 
+def test_hot_pixels_and_dead_pixels():
+    rng = np.random.default_rng(21)
+    pos = random_positions(rng, 12, (160, 160), 20, border=12)
+    syn = render_pattern((160, 160), pos, 2e4, 2.0, glow_level=80, glow_peak=0, seed=6)
+    img = syn.image.astype(float)
+    hot = [(17, 150), (140, 9), (80, 81)]
+    for yx in hot:
+        img[yx] = 30000.0  # single hot pixels
+    dead = rng.random(img.shape) < 0.05
+    img[dead] = np.nan  # dead pixels read as NaN
+    det = detect_spots(img, spot_sigma=2.0)
+    j = _match(syn.positions, det.spots.positions, 1.0)
+    assert (j >= 0).all() and len(det.spots) == len(pos)  # every spot, no hot pixel
+    err = det.spots.positions[j] - syn.positions
+    # Source: Thompson, Larson and Webb (2002); a few missing pixels cost little precision
+    assert np.sqrt(np.mean(err**2)) < 3 * np.sqrt(np.mean(syn.thompson_variance))
+    assert any("hot pixels" in n for n in det.notes)
+
+
 def test_close_pair_resolved():
     s = 2.0
     pts = [[40.0, 40.0], [40.0 + 4 * s, 41.0]]

@@ -82,6 +82,9 @@ FALLBACK_SIGMA = 2.0
 APERTURE = 3.0
 #: Inner and outer radius (spot widths) of the background annulus.
 ANNULUS = (4.0, 6.0)
+#: Maxima narrower than this fraction of the spot width (and with snr > 10) are taken for
+#: hot pixels and left out (only when the spot width is at least 1 px).
+HOT_PIXEL_WIDTH = 0.4
 #: Gaussian truncation used by scipy.ndimage.gaussian_filter (its default).
 _TRUNCATE = 4.0
 #: Width (in meshes) of the Gaussian weight of the local quadratic smoothing of mesh grids.
@@ -245,6 +248,7 @@ def _mesh_planes(a: np.ndarray, o: np.ndarray, m: int, b: int, level: np.ndarray
     X = np.tile(off, m)
     Y = np.repeat(off, m)
     wgt = ok.astype(np.float64)
+    v = np.where(ok, v, 0.0)  # masked entries may hold NaN
     basis = (np.ones_like(X), X, Y)
     A = np.empty((h, w, 3, 3))
     r = np.empty((h, w, 3))
@@ -620,8 +624,8 @@ def _front(
     # candidates: above a conservative piecewise-constant threshold, then exact test
     thr = ndi.minimum_filter(s_med + 0.9 * threshold * s_noise, size=3, mode="nearest").astype(np.float32)
     cand = (smooth.reshape(hb, b, wb, b) > thr[:, None, :, None]).reshape(hp, wp)
-    if not all_valid:
-        cand &= valid
+    # maxima on masked pixels are kept for now: a spot with a few dead pixels may peak on
+    # one; after refinement only spots whose centre lies mostly on usable pixels remain
     cand[0, :] = False
     cand[:, 0] = False
     cand[h - 1:, :] = False
@@ -761,6 +765,37 @@ def _weighted_centroid(p: _Patches, d: np.ndarray, x: np.ndarray, y: np.ndarray,
     return x, y, converged
 
 
+def _gaussian_fit(p: _Patches, d: np.ndarray, x: np.ndarray, y: np.ndarray, sigma: float,
+                  sel: np.ndarray, iterations: int = 15):
+    """Least-squares fit of A exp(-r^2 / 2 sigma^2) at (x, y) to the usable pixels of the
+    selected patches (Gauss-Newton with steps limited to 1 px); returns the new x, y."""
+    idx = np.nonzero(sel)[0]
+    X, Y, V = p.X[idx], p.Y[idx], p.valid[idx]
+    D = d[idx] * V
+    cx, cy = x[idx].astype(float).copy(), y[idx].astype(float).copy()
+    for _ in range(iterations):
+        u, v = X - cx[:, None, None], Y - cy[:, None, None]
+        g = np.exp(-0.5 * (u**2 + v**2) / sigma**2) * V
+        amp = (g * D).sum(axis=(1, 2)) / np.maximum((g * g).sum(axis=(1, 2)), 1e-300)
+        res = D - amp[:, None, None] * g
+        jx = amp[:, None, None] * g * u / sigma**2  # d model / d x
+        jy = amp[:, None, None] * g * v / sigma**2
+        jxx, jyy, jxy = (jx * jx).sum(axis=(1, 2)), (jy * jy).sum(axis=(1, 2)), (jx * jy).sum(axis=(1, 2))
+        bx, by = (jx * res).sum(axis=(1, 2)), (jy * res).sum(axis=(1, 2))
+        det = jxx * jyy - jxy**2
+        ok = (det > 1e-300) & (amp > 0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sx = np.where(ok, (jyy * bx - jxy * by) / det, 0.0)
+            sy = np.where(ok, (jxx * by - jxy * bx) / det, 0.0)
+        norm = np.hypot(sx, sy)
+        scale = np.where(norm > 1.0, 1.0 / np.maximum(norm, 1e-300), 1.0)
+        cx += sx * scale
+        cy += sy * scale
+        if np.all(norm < 1e-4):
+            break
+    return cx, cy
+
+
 def _refine(front: _Front, shape, sigma: float, gain: float | None, aperture: float):
     """Refined positions and photometry of the candidates of ``front``."""
     r_in, r_out = ANNULUS[0] * sigma, ANNULUS[1] * sigma
@@ -772,6 +807,12 @@ def _refine(front: _Front, shape, sigma: float, gain: float | None, aperture: fl
     bg = np.where(nring >= 10, bg, 0.0)  # values are relative to the mesh background
     d = p.values - bg[:, None, None]
     x, y, conv = _weighted_centroid(p, d, x0, y0, sigma)
+    # spots missing pixels near their centre (mask edges, dead pixels): the weighted
+    # centroid over the remaining pixels is pulled away from the gap; fit a Gaussian instead
+    r2 = (p.X - x[:, None, None]) ** 2 + (p.Y - y[:, None, None]) ** 2
+    gap = ((r2 <= (2 * sigma) ** 2) & ~p.valid).any(axis=(1, 2))
+    if gap.any():
+        x[gap], y[gap] = _gaussian_fit(p, d, x, y, sigma, gap)
     # final local background and noise around the refined centre
     bg, noise, nring = _ring_stats(p, x, y, r_in, r_out)
     mesh_noise = _interp_points(front.s_noise, y, x, front.b) / math.sqrt(gaussian_kernel_norm2(sigma))
@@ -821,12 +862,14 @@ def _refine(front: _Front, shape, sigma: float, gain: float | None, aperture: fl
             unc2 = var_pix * np.pi * w2**2 / 2 * (s2 + w2) ** 2 / (flux**2 * tau2**2)
     unc = np.sqrt(unc2)
     edge = (ap_all & ~p.valid).any(axis=(1, 2))
+    core = r2 <= (1.5 * sigma) ** 2
+    core_usable = (core & p.valid).sum(axis=(1, 2)) / np.maximum(core.sum(axis=(1, 2)), 1)
     sat = (ap_all & p.saturated).any(axis=(1, 2))
     moved = np.hypot(x - x0, y - y0)
     return {
         "x": x, "y": y, "intensity": flux_ap, "intensity_error": np.sqrt(var_ap), "sigma": width,
         "snr": snr, "uncertainty": unc, "saturated": sat, "edge": edge, "converged": conv,
-        "moved": moved,
+        "moved": moved, "core_usable": core_usable, "second_moment": np.where(sw > 0, m2, np.nan),
     }
 
 
@@ -1109,9 +1152,14 @@ def detect_spots(
         x, y = res["x"], res["y"]
         ok = (res["moved"] <= 1.5 * spot_sigma + 1) & (x > -0.5) & (x < w - 0.5) & (y > -0.5) & (y < h - 0.5)
         ok &= np.isfinite(x) & np.isfinite(y)
-        iy = np.clip(np.rint(y).astype(int), 0, h - 1)
-        ix = np.clip(np.rint(x).astype(int), 0, w - 1)
-        ok &= usable[iy, ix]
+        ok &= res["core_usable"] >= 0.5  # the spot's centre lies on usable pixels
+        # single hot pixels (or cosmic-ray hits): bright, and far narrower than the spots
+        narrow2 = (HOT_PIXEL_WIDTH * spot_sigma) ** 2 + 1.0 / 12.0  # incl. the pixel's 1/12
+        m2_narrow = narrow2 * spot_sigma**2 / (narrow2 + spot_sigma**2)  # its weighted moment
+        hot = ok & (spot_sigma >= 1.0) & (res["snr"] > 10) & (res["second_moment"] < m2_narrow)
+        if hot.any():
+            notes.append(f"{int(hot.sum())} maxima much narrower than the spots (hot pixels) were left out.")
+        ok &= ~hot
         sel = np.nonzero(ok)[0]
         keep = sel[_merge(x[sel], y[sel], front.stat[sel], max(1.0, spot_sigma))]
         spots = SpotList.from_columns(**{k: res[k][keep] for k in (
