@@ -39,12 +39,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import constants
 
+from surfgeo.diffraction.electron import HBAR2_2M
 from surfgeo.errors import InputError
-
-#: hbar^2 / (2 m_e) in eV Angstrom^2 (CODATA through scipy.constants).
-HBAR2_OVER_2M = constants.hbar**2 / (2.0 * constants.m_e) / constants.e * 1e20
 
 #: Monolayer thickness (Angstrom) used when no element of the model has a crystal structure in
 #: ASE's reference states. A model choice, no source (the Seah-Dench paper's typical metal).
@@ -237,7 +234,7 @@ class ImaginaryInnerPotential:
 
     def amplitude_decay(self, energy, k_inside, kz_in, kz_out) -> np.ndarray:
         """See :meth:`SeahDench.amplitude_decay`; here ``Im sqrt(k_z^2 + i V0i / (hbar^2/2m))``."""
-        eta = self.v0i / HBAR2_OVER_2M
+        eta = self.v0i / HBAR2_2M
         kz_in = np.asarray(kz_in, dtype=float)[:, None]
         kz_out = np.asarray(kz_out, dtype=float)
         return (np.sqrt(kz_in**2 + 1j * eta).imag + np.sqrt(kz_out**2 + 1j * eta).imag)
@@ -251,7 +248,7 @@ class ImaginaryInnerPotential:
         if self.v0i == 0:
             return np.full(np.shape(e_in), math.inf)
         # hbar v / (2 V0i) = hbar sqrt(2 E / m) / (2 V0i) = 2 sqrt(E * hbar^2/2m) / (2 V0i)
-        return np.sqrt(e_in * HBAR2_OVER_2M) / self.v0i
+        return np.sqrt(e_in * HBAR2_2M) / self.v0i
 
 
 def resolve_attenuation(attenuation):
@@ -276,7 +273,6 @@ def resolve_attenuation(attenuation):
 
 
 __all__ = [
-    "HBAR2_OVER_2M",
     "DEFAULT_MONOLAYER_THICKNESS",
     "seah_dench_imfp",
     "monolayer_thickness",

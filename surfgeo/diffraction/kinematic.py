@@ -57,10 +57,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from surfgeo.diffraction.attenuation import HBAR2_OVER_2M, resolve_attenuation
+from surfgeo.diffraction.attenuation import resolve_attenuation
 from surfgeo.diffraction.debye_waller import MODELS as VIBRATION_MODELS
 from surfgeo.diffraction.debye_waller import atomic_mean_square_displacements
-from surfgeo.diffraction.electron import wavenumber
+from surfgeo.diffraction.electron import HBAR2_2M, check_incidence, wavenumber
 from surfgeo.diffraction.scattering import resolve_amplitudes
 from surfgeo.errors import InputError, StructureError
 
@@ -109,20 +109,6 @@ class ScatteringGeometry:
     k_out: np.ndarray
     q: np.ndarray
     emerges: np.ndarray
-
-
-def _check_incidence(incidence) -> tuple[float, float]:
-    try:
-        theta, phi = (float(v) for v in incidence)
-    except (TypeError, ValueError):
-        raise InputError(
-            f"incidence must be two numbers (polar angle, azimuth) in degrees, got {incidence!r}."
-        ) from None
-    if not (math.isfinite(theta) and math.isfinite(phi)) or not (0.0 <= theta < 90.0):
-        raise InputError(
-            f"the incidence polar angle must be at least 0 and below 90 degrees, got {incidence!r}."
-        )
-    return math.radians(theta), math.radians(phi)
 
 
 def _check_inner_potential(v0r) -> float:
@@ -184,10 +170,10 @@ def scattering_geometry(
     """
     g = _check_g(g_parallel)
     e = _check_energies(energies)
-    theta, phi = _check_incidence(incidence)
+    theta, phi = (math.radians(v) for v in check_incidence(incidence))
     v0r = _check_inner_potential(inner_potential)
     k = np.asarray(wavenumber(e), dtype=float).reshape(-1)
-    K2 = k**2 + v0r / HBAR2_OVER_2M
+    K2 = k**2 + v0r / HBAR2_2M
     kpi = (k * math.sin(theta))[:, None] * np.array([math.cos(phi), math.sin(phi)])  # (NE, 2)
     kz_in = -np.sqrt(K2 - np.einsum("ei,ei->e", kpi, kpi))
     kpo = kpi[:, None, :] + g[None, :, :]  # (NE, Nb, 2)

@@ -161,12 +161,12 @@ class PartialWaveAmplitudes:
         self.fallback = fallback
 
     def __call__(self, numbers, energy, k_inside, cos_angle) -> np.ndarray:
-        from surfgeo.diffraction.attenuation import HBAR2_OVER_2M
+        from surfgeo.diffraction.electron import energy_from_wavenumber, wavenumber
 
         z = np.asarray(numbers, dtype=int).reshape(-1)
         c = np.asarray(cos_angle, dtype=float).reshape(-1)
         out = np.empty((z.size, c.size), dtype=complex)
-        e_inside = float(k_inside) ** 2 * HBAR2_OVER_2M
+        e_inside = energy_from_wavenumber(float(k_inside))
         for i, zi in enumerate(z):
             fn = self.phase_shifts.get(int(zi))
             if fn is None:
@@ -176,7 +176,7 @@ class PartialWaveAmplitudes:
                 continue
             delta = np.asarray(fn(e_inside if self.inside else float(energy)), dtype=float)
             # with inside=False the phase shifts refer to the vacuum wavenumber
-            k = float(k_inside) if self.inside else math.sqrt(float(energy) / HBAR2_OVER_2M)
+            k = float(k_inside) if self.inside else wavenumber(float(energy))
             out[i] = partial_wave_amplitude(delta, k, c)
         return out
 
