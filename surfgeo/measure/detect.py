@@ -624,8 +624,9 @@ def _front(
     # candidates: above a conservative piecewise-constant threshold, then exact test
     thr = ndi.minimum_filter(s_med + 0.9 * threshold * s_noise, size=3, mode="nearest").astype(np.float32)
     cand = (smooth.reshape(hb, b, wb, b) > thr[:, None, :, None]).reshape(hp, wp)
-    # maxima on masked pixels are kept for now: a spot with a few dead pixels may peak on
-    # one; after refinement only spots whose centre lies mostly on usable pixels remain
+    # maxima on masked pixels next to usable ones are kept for now: a spot with a few dead
+    # pixels may peak on one; after refinement only spots whose centre lies mostly on
+    # usable pixels remain
     cand[0, :] = False
     cand[:, 0] = False
     cand[h - 1:, :] = False
@@ -639,6 +640,12 @@ def _front(
     for off in (1, wp - 1, wp, wp + 1):
         is_max &= v >= flat[idx + off]
     idx = idx[is_max]
+    if not all_valid:  # on a masked pixel: keep only next to usable ones (dead pixels)
+        vflat = valid.ravel()
+        near = vflat[idx].copy()
+        for off in (-wp - 1, -wp, -wp + 1, -1, 1, wp - 1, wp, wp + 1):
+            near |= vflat[idx + off]
+        idx = idx[near]
     rows, cols = np.divmod(idx, wp)
     # parabolic sub-pixel peak of the filtered image: its position starts the refinement,
     # its height (not the pixel's) is compared with the threshold
