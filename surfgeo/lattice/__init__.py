@@ -5,7 +5,7 @@ Pure mathematics on numpy arrays and exact fractions; this package knows nothing
 
 from surfgeo.lattice.domains import Domain, distinct_superlattices, stabiliser, symmetry_domains
 from surfgeo.lattice.hnf import canonical, equivalent, hermite_normal_form, hermite_normal_forms
-from surfgeo.lattice.lattice2d import HOLOHEDRY, KINDS, Lattice2D, PointOperation
+from surfgeo.lattice.lattice2d import HOLOHEDRY, KINDS, Lattice2D, PointOperation, gauss_reduce
 from surfgeo.lattice.rational import Surd
 from surfgeo.lattice.spec import SPEC_HELP, parse_lattice
 from surfgeo.lattice.superstructure import SUPERSTRUCTURE_KINDS, Superstructure, basis_note
@@ -16,6 +16,7 @@ __all__ = [
     "KINDS",
     "Lattice2D",
     "PointOperation",
+    "gauss_reduce",
     "SPEC_HELP",
     "parse_lattice",
     # superstructures and notation

@@ -101,6 +101,46 @@ class PointOperation:
         return f"PointOperation({self.symbol}, {self.integer.tolist()})"
 
 
+def gauss_reduce(B) -> tuple[np.ndarray, np.ndarray]:
+    """Lagrange-Gauss reduction of the two rows of ``B`` on plain floats.
+
+    The fast core for callers that need only a short basis (Wood search, face geometry,
+    symmetry), without the orientation and tie rules of :meth:`Lattice2D.reduced` and without
+    building a :class:`Lattice2D`.
+
+    Parameters
+    ----------
+    B : array_like, shape (2, 2)
+        Basis vectors as rows (any units, any orientation).
+
+    Returns
+    -------
+    reduced : ndarray, shape (2, 2)
+        Rows r1, r2 with |r1| <= |r2| and |r1 . r2| <= |r1|^2 / 2.
+    T : ndarray of int, shape (2, 2)
+        Unimodular matrix with ``reduced = T @ B``.
+
+    References
+    ----------
+    .. [1] P. Q. Nguyen and D. Stehle, "Low-dimensional lattice basis reduction revisited",
+       ACM Trans. Algorithms 5, 46 (2009) (Lagrange-Gauss algorithm).
+    """
+    (x1, y1), (x2, y2) = np.asarray(B, dtype=float).tolist()
+    t = [[1, 0], [0, 1]]
+    for _ in range(200):
+        n1, n2 = x1 * x1 + y1 * y1, x2 * x2 + y2 * y2
+        if n1 > n2:
+            x1, y1, x2, y2 = x2, y2, x1, y1
+            t = [t[1], t[0]]
+            n1 = n2
+        mu = round((x1 * x2 + y1 * y2) / n1)
+        if mu == 0:
+            break
+        x2, y2 = x2 - mu * x1, y2 - mu * y1
+        t[1] = [t[1][0] - mu * t[0][0], t[1][1] - mu * t[0][1]]
+    return np.array([[x1, y1], [x2, y2]]), np.array(t, dtype=np.int64)
+
+
 @dataclass(frozen=True, eq=False)
 class Lattice2D:
     """A 2D Bravais lattice given by two basis vectors (rows of ``vectors``, Angstrom).

@@ -36,7 +36,7 @@ from fractions import Fraction
 import numpy as np
 
 from surfgeo.errors import NotationError
-from surfgeo.lattice.lattice2d import Lattice2D
+from surfgeo.lattice.lattice2d import Lattice2D, gauss_reduce
 from surfgeo.lattice.rational import (
     SMALL_DENOMINATOR,
     Surd,
@@ -385,25 +385,6 @@ def wood_to_matrix(lattice: Lattice2D, wood: WoodNotation | str) -> np.ndarray:
 
 
 # --------------------------------------------------------------------------- matrix -> Wood
-def _gauss_reduce(B: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Lagrange-Gauss reduction of the rows of ``B``: (reduced rows, integer T) with
-    reduced = T @ B and |r1| <= |r2|. Plain floats; cheaper than building a Lattice2D."""
-    (x1, y1), (x2, y2) = B.tolist()
-    t = [[1, 0], [0, 1]]
-    for _ in range(200):
-        n1, n2 = x1 * x1 + y1 * y1, x2 * x2 + y2 * y2
-        if n1 > n2:
-            x1, y1, x2, y2 = x2, y2, x1, y1
-            t = [t[1], t[0]]
-            n1 = n2
-        mu = round((x1 * x2 + y1 * y2) / n1)
-        if mu == 0:
-            break
-        x2, y2 = x2 - mu * x1, y2 - mu * y1
-        t[1] = [t[1][0] - mu * t[0][0], t[1][1] - mu * t[0][1]]
-    return np.array([[x1, y1], [x2, y2]]), np.array(t, dtype=np.int64)
-
-
 def _search(lattice: Lattice2D, Mf: np.ndarray) -> list[tuple[bool, float, float, float]]:
     """(centred, p^2, q^2, phi in radians) of every Wood form of B = Mf A.
 
@@ -415,7 +396,7 @@ def _search(lattice: Lattice2D, Mf: np.ndarray) -> list[tuple[bool, float, float
     B = Mf @ A
     detm = abs(float(np.linalg.det(Mf)))
     la1, la2 = lattice.lengths
-    red, T = _gauss_reduce(B)
+    red, T = gauss_reduce(B)
     r1, r2 = red
     lam1 = math.hypot(*r1)
     rad_p = detm * la1 * la2 / lam1  # both Wood vectors are at least lam1 long

@@ -47,7 +47,7 @@ import numpy as np
 from ase import Atoms
 
 from surfgeo.errors import StructureError
-from surfgeo.lattice import Lattice2D
+from surfgeo.lattice import Lattice2D, gauss_reduce
 from surfgeo.slab.bulk import (
     bulk_crystal,
     bulk_description,
@@ -251,26 +251,12 @@ def _shortest_vectors_2d(A: np.ndarray, nmax: int = 2) -> np.ndarray:
     return ij @ A
 
 
-def _gauss_reduce(u, v) -> np.ndarray:
-    """Gauss-Lagrange reduction of a 2D basis (plain floats; the basis is any, not oriented)."""
-    ux, uy = float(u[0]), float(u[1])
-    vx, vy = float(v[0]), float(v[1])
-    for _ in range(200):
-        if ux * ux + uy * uy > vx * vx + vy * vy:
-            ux, uy, vx, vy = vx, vy, ux, uy
-        mu = round((ux * vx + uy * vy) / (ux * ux + uy * uy))
-        if mu == 0:
-            break
-        vx, vy = vx - mu * ux, vy - mu * uy
-    return np.array([[ux, uy], [vx, vy]])
-
-
 def _choose_basis(k1: np.ndarray, k2: np.ndarray, n: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Reduced, right-handed (about n) basis of the plane lattice spanned by k1, k2 (3D vectors)."""
     e1 = k1 / np.linalg.norm(k1)
     e2 = np.array([n[1] * e1[2] - n[2] * e1[1], n[2] * e1[0] - n[0] * e1[2], n[0] * e1[1] - n[1] * e1[0]])
     E = np.array([e1, e2])  # 2D coordinates: v2 = E @ v
-    red = _gauss_reduce(E @ k1, E @ k2)
+    red, _ = gauss_reduce([E @ k1, E @ k2])
     cands2 = _shortest_vectors_2d(red)
     cands3 = cands2 @ E
     lens = np.linalg.norm(cands2, axis=1)
