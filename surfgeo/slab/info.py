@@ -35,14 +35,13 @@ verbatim in :attr:`SurfaceInfo.extra` and written back unchanged.
 from __future__ import annotations
 
 import copy
-import json
-import math
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
 from surfgeo.errors import StructureError
+from surfgeo.jsonable import to_jsonable
 from surfgeo.lattice import Lattice2D
 
 #: The key of the record in ``atoms.info``.
@@ -52,44 +51,6 @@ _KNOWN = (
     "surface_cell", "supercell_matrix", "miller", "bulk", "layer_spacing", "relaxations",
     "provenance", "step", "termination",
 )
-
-
-def _np_default(obj: Any) -> Any:
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    if isinstance(obj, np.bool_):
-        return bool(obj)
-    if isinstance(obj, np.integer):
-        return int(obj)
-    if isinstance(obj, np.floating):
-        return float(obj)
-    raise TypeError
-
-
-def _plain_fast(obj: Any) -> Any:
-    """Same as :func:`_plain` through the C JSON codec; falls back for non-finite numbers."""
-    try:
-        return json.loads(json.dumps(obj, default=_np_default, allow_nan=False))
-    except (TypeError, ValueError):
-        return _plain(obj)
-
-
-def _plain(obj: Any) -> Any:
-    """Convert numpy scalars/arrays and tuples to plain JSON types (recursively)."""
-    if isinstance(obj, dict):
-        return {str(k): _plain(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_plain(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return _plain(obj.tolist())
-    if isinstance(obj, (bool, np.bool_)):
-        return bool(obj)
-    if isinstance(obj, (int, np.integer)):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        f = float(obj)
-        return f if math.isfinite(f) else None
-    return obj
 
 
 @dataclass
@@ -182,7 +143,7 @@ class SurfaceInfo:
         for k, v in self.extra.items():
             if k not in out:
                 out[k] = v
-        return _plain_fast(out)
+        return to_jsonable(out)
 
     @classmethod
     def from_dict(cls, record: dict) -> SurfaceInfo:
