@@ -11,6 +11,32 @@ from surfgeo.lattice import SPEC_HELP, Lattice2D, parse_lattice
 _SURFACE_NAME = re.compile(r"^\s*[A-Z][a-z]?\s*\(")
 
 
+def add_command(subparsers, common: argparse.ArgumentParser, name: str, *, help: str, description: str,
+                epilog: str) -> argparse.ArgumentParser:
+    """Add the subcommand ``name`` in the house style and return its parser.
+
+    The parser inherits the options shared by every command (``parents=[common]``: ``--debug``)
+    and prints ``epilog`` (the worked example) as written.
+    """
+    return subparsers.add_parser(
+        name, parents=[common], help=help, description=description, epilog=epilog,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+
+
+def add_frame_option(parser: argparse.ArgumentParser, what: str) -> None:
+    """``--frame N``: which frame of a multi-frame structure file ``what`` to use (default last)."""
+    parser.add_argument("--frame", default="-1", metavar="N",
+                        help=f"frame of {what} to use (default: the last; 0 = the first)")
+
+
+def add_layer_tol_option(parser: argparse.ArgumentParser) -> None:
+    """``--layer-tol T``: the height tolerance that groups atoms into layers."""
+    parser.add_argument("--layer-tol", type=float, default=None, metavar="T",
+                        help="atoms closer than T Angstrom in height share a layer (default 0.3, or half "
+                        "the bulk layer spacing recorded in the model when that is smaller)")
+
+
 def resolve_lattice(spec: str) -> Lattice2D:
     """A lattice from a spec string (``hex:2.77``) or a surface name (``Pt(111)``)."""
     if _SURFACE_NAME.match(spec or ""):

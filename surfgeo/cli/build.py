@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from surfgeo.cli._common import add_output_options, check_outputs
+from surfgeo.cli._common import add_command, add_output_options, check_outputs
 
 ORDER = 20
 
@@ -40,14 +40,12 @@ examples:
 
 
 def register(subparsers, common: argparse.ArgumentParser) -> None:
-    p = subparsers.add_parser(
-        "build",
-        parents=[common],
+    p = add_command(
+        subparsers, common, "build",
         help="build a slab of any face of a crystal (flat, stepped or kinked, optionally relaxed)",
         description="Cut a slab of any face of a bulk crystal in its primitive reduced surface cell, "
         "report its surface lattice, layers, terminations and steps, and write it to a structure file.",
         epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("model", nargs="?", metavar="MODEL", help="a surface model file (instead of --crystal)")
     g = p.add_argument_group("crystal")

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import argparse
 import sys
 
 ORDER = 60
@@ -27,11 +26,10 @@ thickness and vacuum, and choosing pseudopotentials and the functional, are up t
 
 
 def register(subparsers, common) -> None:
-    from surfgeo.cli._common import add_output_options
+    from surfgeo.cli._common import add_command, add_frame_option, add_layer_tol_option, add_output_options
 
-    p = subparsers.add_parser(
-        "export", parents=[common], epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
+    p = add_command(
+        subparsers, common, "export", epilog=EPILOG,
         help="write a slab as a DFT input with fixed layers, k-points and a companion note",
         description="Write a slab for a DFT or force-field code: fixed atoms, a k-point mesh from a "
         "k-point spacing, the vacuum and a dipole-correction recommendation, in the file where the "
@@ -41,8 +39,7 @@ def register(subparsers, common) -> None:
     p.add_argument("output", metavar="OUTPUT", help="the file to write; its name chooses the format")
     p.add_argument("--format", dest="fmt", metavar="NAME",
                    help="vasp, espresso, aims, cif, extxyz or lammps (instead of guessing from OUTPUT)")
-    p.add_argument("--frame", default="-1", metavar="N",
-                   help="frame of a multi-frame MODEL file (default: the last; 0 = the first)")
+    add_frame_option(p, "a multi-frame MODEL file")
     fix = p.add_mutually_exclusive_group()
     fix.add_argument("--fix-bottom", type=int, metavar="N", help="fix the N lowest atomic layers")
     fix.add_argument("--fix-below", type=float, metavar="Z", help="fix every atom lower than Z (Angstrom)")
@@ -52,9 +49,7 @@ def register(subparsers, common) -> None:
                    help="largest k-point spacing in 1/Angstrom, 2 pi included (default 0.25)")
     p.add_argument("--vacuum", type=float, default=None, metavar="V",
                    help="reset the vacuum to V Angstrom (atoms keep their positions)")
-    p.add_argument("--layer-tol", type=float, default=None, metavar="T",
-                   help="atoms closer than T Angstrom in height share a layer (default 0.3, or half "
-                   "the bulk layer spacing recorded in the model when that is smaller)")
+    add_layer_tol_option(p)
     p.add_argument("--pseudo", action="append", default=[], metavar="SYMBOL=FILE",
                    help="pseudopotential file of a species for the pw.x input (repeat per species)")
     p.add_argument("--no-note", action="store_true", help="do not write the companion note file")

@@ -6,6 +6,7 @@ import argparse
 import sys
 
 from surfgeo.cli._common import (
+    add_command,
     add_lattice_option,
     add_output_options,
     add_superstructure_options,
@@ -43,14 +44,12 @@ examples:
 
 
 def register(subparsers, common: argparse.ArgumentParser) -> None:
-    p = subparsers.add_parser(
-        "notation",
-        parents=[common],
+    p = add_command(
+        subparsers, common, "notation",
         help="matrix and Wood notation, kind and domains of a superstructure",
         description="Convert a superstructure between Wood and matrix notation and report its "
         "kind and symmetry domains on the substrate.",
         epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     add_lattice_option(p)
     add_superstructure_options(p)

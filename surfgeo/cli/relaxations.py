@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import argparse
 import sys
 
 ORDER = 70
@@ -24,11 +23,10 @@ to the spacings of the reference, i.e. to the bulk when the reference is bulk-te
 
 
 def register(subparsers, common) -> None:
-    from surfgeo.cli._common import add_output_options
+    from surfgeo.cli._common import add_command, add_frame_option, add_layer_tol_option, add_output_options
 
-    p = subparsers.add_parser(
-        "relaxations", parents=[common], epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
+    p = add_command(
+        subparsers, common, "relaxations", epilog=EPILOG,
         help="measure the relaxations of a relaxed slab against its reference",
         description="Compare a relaxed slab (any file ASE reads: CONTCAR, OUTCAR, vasprun.xml, pw.x "
         "output, extxyz trajectories ...) with its reference slab, layer by layer and adsorbate by "
@@ -37,8 +35,7 @@ def register(subparsers, common) -> None:
     p.add_argument("relaxed", metavar="RELAXED", help="the relaxed structure file")
     p.add_argument("--reference", required=True, metavar="FILE",
                    help="the ideal slab (structure file or model file) the relaxation started from")
-    p.add_argument("--frame", default="-1", metavar="N",
-                   help="frame of RELAXED to analyse (default: the last; 0 = the first)")
+    add_frame_option(p, "RELAXED")
     p.add_argument("--format", dest="fmt", metavar="NAME",
                    help="ASE format name of RELAXED when it cannot be guessed (e.g. vasp-out, espresso-out)")
     p.add_argument("--match", choices=("auto", "index", "distance"), default="auto",
@@ -46,9 +43,7 @@ def register(subparsers, common) -> None:
     p.add_argument("--adsorbates", metavar="SPEC",
                    help="adsorbate atoms: species (O,C), indices of the reference (36,37) or 'none' "
                    "(default: detected)")
-    p.add_argument("--layer-tol", type=float, default=None, metavar="T",
-                   help="atoms closer than T Angstrom in height share a layer (default 0.3, or half "
-                   "the bulk layer spacing recorded in the model when that is smaller)")
+    add_layer_tol_option(p)
     p.add_argument("--max-shift", type=float, default=2.0, metavar="D",
                    help="refuse when an atom moved more than D Angstrom (default 2.0)")
     add_output_options(p, plot=True)
