@@ -133,7 +133,7 @@ def normalised_points(screen: ScreenGeometry, k_parallel, k: float) -> np.ndarra
     Returns
     -------
     ndarray, shape (..., 2)
-        NaN for beams that do not emerge.
+        NaN for beams that do not emerge or lie beyond the range of the radial law.
     """
     kp = np.asarray(k_parallel, dtype=float)
     q = np.hypot(kp[..., 0], kp[..., 1]) / k
@@ -143,7 +143,11 @@ def normalised_points(screen: ScreenGeometry, k_parallel, k: float) -> np.ndarra
         # every radial law has slope 1 at the centre, so rho / q -> 1 as q -> 0
         f = np.where(q > 0, rho / np.where(q > 0, q, 1.0), 1.0)
     w = kp / k * f[..., None]
-    w[~(q < 1.0)] = np.nan
+    with np.errstate(invalid="ignore"):
+        beyond = ~(q < 1.0) | (
+            np.nan_to_num(theta, nan=math.pi) > math.radians(screen.max_theta_deg) * (1 + 1e-12)
+        )
+    w[beyond] = np.nan
     return w
 
 

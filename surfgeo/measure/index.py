@@ -24,7 +24,9 @@ A negative log-likelihood with a parsimony prior, in natural-log units:
 ``score = sum_matched r^2 / (2 sigma^2) + w_u N_unexplained + w_a N_absent + ln(area)``
 
 * Each predicted spot on the screen is seen with probability ``q`` at its predicted position
-  with Gaussian error ``sigma`` (px, from the calibration's residuals, at least 0.5 px);
+  with Gaussian error ``sigma`` per axis (px; first from the calibration's residuals, then
+  re-estimated from the best candidate's matched spots, ``median(r^2) = 2 ln 2 sigma^2``; at
+  least 0.5 px); the gate is ``3.5 sqrt(2) sigma``;
   stray spots fall anywhere on the screen with density ``lambda`` (``strays`` expected).
 * A measured spot within the gate of a predicted one is matched and costs its positional
   term; one that no predicted spot explains is a stray and costs
@@ -576,6 +578,7 @@ def index_pattern(
         cals = [calibration]
     else:
         cals = calibration_candidates(P, lattice, energy_eV, screen, n=n_calibrations)
+    sigma_given = sigma_px is not None
     if sigma_px is None:
         rms = [c.rms_px for c in cals if math.isfinite(c.rms_px)]
         sigma_px = max(min(rms) / math.sqrt(2.0), MIN_SIGMA_PX) if rms else 1.0
@@ -598,6 +601,26 @@ def index_pattern(
         if best_run is None or run.scores.min() < best_run.scores.min() - CALIBRATION_SWITCH:
             best_run = run
     run = best_run
+    if not sigma_given:
+        # re-estimate sigma from the best candidate's matched spots (many more than the integer
+        # spots of the calibration): for a 2D Gaussian, median(r^2) = 2 ln 2 sigma^2
+        o = int(np.argmin(run.scores))
+        r = run.best[o][run.best[o] <= run.ctx.gate]
+        if len(r) >= 8:
+            s_new = max(math.sqrt(float(np.median(r * r)) / (2 * math.log(2.0))), MIN_SIGMA_PX)
+            if abs(s_new / run.ctx.sigma - 1.0) > 0.1:
+                run = _score_all(
+                    P,
+                    run.cal,
+                    lattice,
+                    energy_eV,
+                    table,
+                    gate_px,
+                    s_new,
+                    seen_probability,
+                    expected_strays,
+                    False,
+                )
     calibration, ctx, grids, best = run.cal, run.ctx, run.grids, run.best
     scores, matched, absent, visible, rms = run.scores, run.matched, run.absent, run.visible, run.rms
     w_u, w_a = run.w_u, run.w_a
@@ -904,7 +927,7 @@ def _tell_by_energy(ctx: _Context, table: _Table, o1: int, o2: int) -> str:
     if e > ctx.E:
         return (
             f"another energy: the spot {label}, predicted only by {who}, comes onto the screen above "
-            f"{e - ctx.offset:.0f} eV (nominal)"
+            f"{e - ctx.offset:.1f} eV (nominal)"
         )
     return (
         f"the spot {label}, predicted only by {who}, is on the screen at this energy but hidden (gun shadow "

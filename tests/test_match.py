@@ -1,0 +1,173 @@
+"""Matching measured spots to a candidate's prediction: the gated Hungarian assignment, the
+report (matched, unexplained, absent with kinematic verdicts), residuals in px and 1/Angstrom.
+
+Measured spots here are synthetic, made by surfgeo's own forward model."""
+
+import itertools
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from surfgeo.diffraction.electron import wavenumber
+from surfgeo.diffraction.pattern import superstructure_pattern
+from surfgeo.errors import InputError
+from surfgeo.lattice import Lattice2D, Superstructure
+from surfgeo.measure.calibrate import Calibration, fast_pixels
+from surfgeo.measure.match import assign, match_spots, predict_spots
+from surfgeo.measure.synthetic import synthetic_measurement
+
+
+def brute_force(a, b, gate):
+    """Best assignment by enumeration: most pairs within the gate, then least squared distance."""
+    best = (0, 0.0)
+    n, m = len(a), len(b)
+    d2 = ((a[:, None, :] - b[None, :, :]) ** 2).sum(-1)
+    for k in range(min(n, m), 0, -1):
+        found = None
+        for rows in itertools.combinations(range(n), k):
+            for cols in itertools.permutations(range(m), k):
+                if all(d2[r, c] <= gate * gate for r, c in zip(rows, cols, strict=True)):
+                    cost = sum(d2[r, c] for r, c in zip(rows, cols, strict=True))
+                    if found is None or cost < found:
+                        found = cost
+        if found is not None:
+            return (k, found)
+    return best
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.tuples(st.floats(0, 20), st.floats(0, 20)), min_size=1, max_size=5),
+    st.lists(st.tuples(st.floats(0, 20), st.floats(0, 20)), min_size=1, max_size=5),
+    st.floats(1.0, 8.0),
+)
+def test_assignment_is_optimal(meas, pred, gate):
+    # Kuhn's Hungarian method solves the assignment problem exactly; checked against brute force.
+    # Source: H. W. Kuhn, Naval Research Logistics Quarterly 2, 83 (1955)
+    a, b = np.array(meas), np.array(pred)
+    pairs, dist = assign(a, b, gate)
+    assert np.all(dist <= gate + 1e-12)
+    assert len(set(pairs[:, 0])) == len(pairs) and len(set(pairs[:, 1])) == len(pairs)
+    k, cost = brute_force(a, b, gate)
+    assert len(pairs) == k
+    assert abs(float(np.sum(dist**2)) - cost) <= 1e-6 * max(1.0, cost)
+
+
+def test_assignment_prefers_the_global_optimum_to_greedy_nearest():
+    # measured 0 is nearest to predicted 0, but giving predicted 0 to measured 1 matches both
+    a = np.array([[0.0, 0.0], [3.0, 0.0]])
+    b = np.array([[2.0, 0.0], [-2.5, 0.0]])
+    pairs, _ = assign(a, b, 2.6)
+    assert sorted(map(tuple, pairs.tolist())) == [(0, 1), (1, 0)]
+    with pytest.raises(InputError, match="gate"):
+        assign(a, b, 0.0)
+
+
+def test_predicted_spots_are_the_pattern_on_the_calibrated_screen():
+    lat = Lattice2D.hexagonal(2.77)
+    m = synthetic_measurement(1, lattice=lat, matrix=[[3, 1], [-1, 2]], energy=130.0)
+    cal = Calibration(screen=m.screen)
+    pred = predict_spots(cal, m.energy, Superstructure(lat, [[3, 1], [-1, 2]]))
+    pat = superstructure_pattern(lat, [[3, 1], [-1, 2]], m.energy)
+    assert np.allclose(pred.pixels, m.screen.to_pixels(pat.k_parallel, m.energy), equal_nan=True)
+    # (sqrt7 x sqrt7)R19.1 has two mirror domains on a hexagonal substrate.
+    # Source: sources.md, Surface lattices and notation (Common practice)
+    assert pred.n_domains == 2
+    assert pred.visible.sum() == len(m.truth_px)
+
+
+def test_report_with_the_true_calibration():
+    m = synthetic_measurement(21, max_area=6)
+    cal = Calibration(screen=m.screen, rms_px=1.0)
+    res = match_spots(m.spots, cal, m.energy, m.domains[0], m.lattice, gate_px=4.5)
+    strays = np.flatnonzero(m.origin < 0)
+    # every stray spot, and nothing else, is unexplained
+    assert set(res.unexplained.tolist()) == set(strays.tolist())
+    assert len(res.pairs) == len(m.spots) - len(strays)
+    # every matched pair is the spot's own beam
+    truth_label = {i: m.truth_labels[m.origin[i]] for i in range(len(m.spots)) if m.origin[i] >= 0}
+    for i, j in res.pairs:
+        assert res.predicted.labels[j] == truth_label[i]
+    # the absent spots are the missing (weak) ones and the merged ones
+    seen = {m.origin[i] for i in range(len(m.spots)) if m.origin[i] >= 0}
+    not_seen = {tuple(m.truth_labels[t]) for t in range(len(m.truth_px)) if t not in seen}
+    assert {tuple(res.predicted.labels[j]) for j in res.absent} == not_seen
+    assert all(v == "unknown" for v in res.verdicts)  # no atoms, no verdict
+    assert res.rms_px < 2.0
+    d = res.to_dict()
+    assert d["matched_count"] == len(res.pairs) and len(d["absent"]) == len(res.absent)
+
+
+def test_residuals_in_inverse_angstrom():
+    # On the far screen r = scale sin(theta) = scale |k_par| / k, so a small shift dr of a spot
+    # changes |k_par| by k dr / (scale cos(theta)); near the centre cos(theta) ~ 1.
+    # Common practice, no source (derivative of the radial law)
+    lat = Lattice2D.square(2.55)
+    scr = Calibration(
+        screen=synthetic_measurement(2, lattice=lat, matrix=[[1, 0], [0, 1]], energy=150.0).screen, rms_px=1.0
+    )
+    pred = predict_spots(scr, 150.0, None, lat)
+    vis = np.flatnonzero(pred.visible & pred.integer)
+    P = pred.pixels[vis] + [1.5, 0.0]
+    res = match_spots(P, scr, 150.0, None, lat, gate_px=3.0, predicted=pred)
+    assert len(res.pairs) == len(vis)
+    k = wavenumber(150.0)
+    th = np.arcsin(np.linalg.norm(pred.k_parallel[res.pairs[:, 1]], axis=1) / k)
+    stretch = 1 + scr.screen.stretch
+    expected = k * 1.5 / (scr.screen.scale * np.cos(th))
+    got = np.linalg.norm(res.residual_k, axis=1)
+    # between the two extremes of the ellipticity and of the direction of the shift
+    assert np.all(got <= expected * 1.0001) and np.all(got >= expected * np.cos(th) / stretch * 0.999)
+    assert np.allclose(np.linalg.norm(res.residual_px, axis=1), 1.5)
+
+
+def test_glide_extinctions_are_reported_as_extinct():
+    # Ni(100)-(2x2)p4g-C (clock reconstruction; model from the structure library): the glide
+    # lines extinguish (h+1/2, 0) and (0, k+1/2) at normal incidence.
+    # Source: International Tables for Crystallography Vol. A, plane group p4g (reflection
+    # conditions h0: h = 2n, 0k: k = 2n in the 2x2 cell); Holland and Woodruff, Surf. Sci. 36,
+    # 488 (1973) (From memory: survive multiple scattering)
+    from surfgeo.slab.info import surface_info
+    from surfgeo.slab.model import build_model
+
+    atoms = build_model("structures/ni100_c_p4g.toml")
+    lat = surface_info(atoms).lattice
+    m = synthetic_measurement(3, lattice=lat, matrix=[[2, 0], [0, 2]], energy=120.0)
+    cal = Calibration(screen=m.screen, rms_px=1.0)
+    pred = predict_spots(cal, m.energy, atoms)
+    assert pred.extinct is not None
+    # the measurement shows what the model predicts: everything but the extinct beams
+    keep = pred.visible & ~pred.extinct
+    P = pred.pixels[keep]
+    res = match_spots(P, cal, m.energy, atoms, gate_px=3.0, predicted=pred)
+    assert len(res.unexplained) == 0
+    labels = [pred.labels[j] for j in res.absent]
+    assert labels and all(v == "extinct" for v in res.verdicts)
+    for h, k in labels:
+        assert (h.denominator == 2 and k.denominator == 1 and k == 0) or (
+            k.denominator == 2 and h.denominator == 1 and h == 0
+        )
+    # drop a strong beam too: it is 'expected', not extinct
+    strong = np.flatnonzero(keep)[np.argmax(pred.intensity[keep] * ~pred.integer[keep])]
+    P2 = pred.pixels[np.setdiff1d(np.flatnonzero(keep), [strong])]
+    res2 = match_spots(P2, cal, m.energy, atoms, gate_px=3.0, predicted=pred)
+    verdict = dict(zip(res2.absent.tolist(), res2.verdicts, strict=True))
+    assert verdict[int(strong)] == "expected"
+
+
+def test_summary_mentions_counts():
+    m = synthetic_measurement(4, max_area=4)
+    res = match_spots(m.spots, Calibration(screen=m.screen, rms_px=1.0), m.energy, m.domains[0], m.lattice)
+    text = "\n".join(res.summary_lines())
+    assert f"matched      {len(res.pairs)} spots" in text
+    assert math.isfinite(res.rms_px) and math.isfinite(res.rms_k)
+    assert res.gate_px == pytest.approx(3.5)
+
+
+def test_fast_pixels_used_for_predictions_handles_non_emerging_beams():
+    scr = Calibration(screen=synthetic_measurement(5).screen)
+    px = fast_pixels(scr.screen, np.array([[100.0, 0.0]]), 50.0)
+    assert np.all(np.isnan(px))
