@@ -587,33 +587,33 @@ def _front(
     wt = wt * usable_mesh
     zero = _fill_meshes(med, wt > 0) if (wt > 0).any() else np.zeros_like(med)
     noise = np.maximum(_fill_meshes(_MAD * mad, wt > 0) if (wt > 0).any() else pix_noise0, floor)
-    ok = ok_sub & ~_sources(s_sub, zero, noise, 2.5, sigma, m)
-    if quick:
-        bg = bg0
+    if quick:  # the first background and the per-mesh MAD noise are good enough
+        background = up.full(bg0)
+        np.subtract(smooth, background, out=smooth)
+        bg, s_med, s_noise, raw_noise = bg0, zero, noise, noise
     else:
+        ok = ok_sub & ~_sources(s_sub, zero, noise, 2.5, sigma, m)
         plane, wt = _mesh_planes(img_sub, ok & ~sat[::2, ::2] if any_sat else ok, m, b, bg0, pix_noise0)
         bg = _loess_grid(plane, wt * (np.median(pix_noise0) / pix_noise0) ** 2)
-    background = up.full(bg)
-    np.subtract(smooth, background, out=smooth)  # now the band-passed image
-    s_sub = smooth[::2, ::2]
+        background = up.full(bg)
+        np.subtract(smooth, background, out=smooth)  # now the band-passed image
+        s_sub = smooth[::2, ::2]
 
-    # the noise of the band-passed image: leave out only clear spots (above the detection
-    # threshold, grown by two spot widths) so that noise peaks do not bias it low; the
-    # standard deviation about the zero level, pooled over 3 x 3 meshes, clipped at 3 sigma
-    def zero_level(ok_now):
-        med, mad, wt = _mesh_stats(s_sub, ok_now, m)
-        wt = wt * usable_mesh
-        if not (wt > 0).any():
-            wt = usable_mesh.astype(float)
-        guess = np.maximum(_fill_meshes(_MAD * mad, wt > 0), floor)
-        return _fill_meshes(med, wt > 0), guess, wt
+        # the noise of the band-passed image: leave out only clear spots (above the
+        # detection threshold, grown by two spot widths) so that noise peaks do not bias it
+        # low; the standard deviation about the zero level, pooled over 3 x 3 meshes,
+        # clipped at 3 sigma
+        def zero_level(ok_now):
+            med, mad, wt = _mesh_stats(s_sub, ok_now, m)
+            wt = wt * usable_mesh
+            if not (wt > 0).any():
+                wt = usable_mesh.astype(float)
+            guess = np.maximum(_fill_meshes(_MAD * mad, wt > 0), floor)
+            return _fill_meshes(med, wt > 0), guess, wt
 
-    s_med, s_noise, wt = zero_level(ok)
-    ok = ok_sub & ~_sources(s_sub, s_med, s_noise, max(threshold, 4.0), 2 * sigma, m)
-    s_med, raw_noise, wt = zero_level(ok)
-    if quick:
-        s_noise = raw_noise
-    else:
+        s_med, s_noise, wt = zero_level(ok)
+        ok = ok_sub & ~_sources(s_sub, s_med, s_noise, max(threshold, 4.0), 2 * sigma, m)
+        s_med, raw_noise, wt = zero_level(ok)
         s_med = _smooth_meshes(s_med, wt)
         dev = s_sub - up.sub(s_med)
         for _ in range(2):
@@ -810,8 +810,14 @@ def _refine(front: _Front, shape, sigma: float, gain: float | None, aperture: fl
     p = _patches(front.filled, front.valid, front.saturated, front.background, front.rows, front.cols,
                  half, shape)
     x0, y0 = front.peak[:, 0].copy(), front.peak[:, 1].copy()
-    bg, _, nring = _ring_stats(p, x0, y0, r_in, r_out)
-    bg = np.where(nring >= 10, bg, 0.0)  # values are relative to the mesh background
+    # local background offset and pixel noise from the annulus around the start (the
+    # refinement moves a spot by a fraction of a pixel; the annulus is 2 widths wide)
+    bg, noise, nring = _ring_stats(p, x0, y0, r_in, r_out)
+    mesh_noise = _interp_points(front.s_noise, y0, x0, front.b) / math.sqrt(gaussian_kernel_norm2(sigma))
+    few = nring < 10
+    bg = np.where(few, 0.0, bg)  # values are relative to the mesh background
+    noise = np.where(few | (noise <= 0), mesh_noise, noise)
+    nring = np.maximum(nring, 1)
     d = p.values - bg[:, None, None]
     x, y, conv = _weighted_centroid(p, d, x0, y0, sigma)
     # spots missing pixels near their centre (mask edges, dead pixels): the weighted
@@ -820,14 +826,6 @@ def _refine(front: _Front, shape, sigma: float, gain: float | None, aperture: fl
     gap = ((r2 <= (2 * sigma) ** 2) & ~p.valid).any(axis=(1, 2))
     if gap.any():
         x[gap], y[gap] = _gaussian_fit(p, d, x, y, sigma, gap)
-    # final local background and noise around the refined centre
-    bg, noise, nring = _ring_stats(p, x, y, r_in, r_out)
-    mesh_noise = _interp_points(front.s_noise, y, x, front.b) / math.sqrt(gaussian_kernel_norm2(sigma))
-    few = nring < 10
-    bg = np.where(few, 0.0, bg)
-    noise = np.where(few | (noise <= 0), mesh_noise, noise)
-    nring = np.maximum(nring, 1)
-    d = p.values - bg[:, None, None]
     dx, dy = p.X - x[:, None, None], p.Y - y[:, None, None]
     r2 = dx**2 + dy**2
     var_pix = noise**2
