@@ -40,6 +40,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from surfgeo.checks import positive_number
 from surfgeo.diffraction.electron import HBAR2_2M
 from surfgeo.errors import InputError
 
@@ -72,11 +73,7 @@ def seah_dench_imfp(energy, monolayer_thickness) -> np.ndarray:
     e = np.asarray(energy, dtype=float)
     if np.any(~np.isfinite(e)) or np.any(e <= 0):
         raise InputError("the energy for the mean free path must be a positive number of eV.")
-    a = float(monolayer_thickness)
-    if not math.isfinite(a) or a <= 0:
-        raise InputError(
-            f"monolayer thickness must be a positive length in Angstrom, got {monolayer_thickness!r}."
-        )
+    a = positive_number(monolayer_thickness, "monolayer thickness")
     a_nm = a / 10.0
     return 10.0 * (538.0 * a_nm / e**2 + 0.41 * a_nm**1.5 * np.sqrt(e))
 
@@ -179,16 +176,7 @@ class FixedMeanFreePath:
     length: float
 
     def __post_init__(self) -> None:
-        try:
-            v = float(self.length)
-        except (TypeError, ValueError):
-            raise InputError(
-                f"attenuation length must be a number of Angstrom, got {self.length!r}."
-            ) from None
-        if math.isnan(v) or v <= 0:
-            raise InputError(
-                f"attenuation length must be a positive length in Angstrom (or inf), got {self.length!r}."
-            )
+        v = positive_number(self.length, "attenuation length (inf: none)", inf_ok=True)
         object.__setattr__(self, "length", v)
 
     def for_atoms(self, numbers) -> FixedMeanFreePath:

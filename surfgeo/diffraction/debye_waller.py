@@ -36,6 +36,7 @@ import numpy as np
 from scipy import constants
 from scipy.special import spence
 
+from surfgeo.checks import positive_number
 from surfgeo.errors import InputError
 
 #: Debye temperatures (K) of the elements by atomic number.
@@ -132,13 +133,7 @@ def _symbol_to_number(key) -> int:
 
 
 def _positive_temperature(name: str, value) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} must be a temperature in kelvin, got {value!r}.") from None
-    if not math.isfinite(v) or v <= 0:
-        raise InputError(f"{name} must be a positive temperature in kelvin, got {value!r}.")
-    return v
+    return positive_number(value, name, "temperature", "kelvin")
 
 
 def debye_temperatures_for(numbers, overrides=None) -> np.ndarray:
@@ -228,12 +223,7 @@ def mean_square_displacement(mass, debye_temperature, temperature, model: str = 
     """
     if model not in MODELS:
         raise InputError(f"vibration model must be one of {', '.join(MODELS)}, got {model!r}.")
-    try:
-        t = float(temperature)
-    except (TypeError, ValueError):
-        raise InputError(f"temperature must be a number in kelvin, got {temperature!r}.") from None
-    if not math.isfinite(t) or t < 0:
-        raise InputError(f"temperature must be zero or a positive number of kelvin, got {temperature!r}.")
+    t = positive_number(temperature, "temperature", "temperature", "kelvin", zero_ok=True)
     m = np.asarray(mass, dtype=float)
     theta = np.asarray(debye_temperature, dtype=float)
     if np.any(m <= 0) or np.any(theta <= 0):

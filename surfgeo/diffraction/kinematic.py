@@ -57,6 +57,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from surfgeo.checks import positive_number
 from surfgeo.diffraction.attenuation import resolve_attenuation
 from surfgeo.diffraction.debye_waller import MODELS as VIBRATION_MODELS
 from surfgeo.diffraction.debye_waller import atomic_mean_square_displacements
@@ -111,16 +112,6 @@ class ScatteringGeometry:
     emerges: np.ndarray
 
 
-def _check_inner_potential(v0r) -> float:
-    try:
-        v = float(v0r)
-    except (TypeError, ValueError):
-        raise InputError(f"inner_potential must be a number of eV, got {v0r!r}.") from None
-    if not math.isfinite(v) or v < 0:
-        raise InputError(f"inner_potential must be zero or a positive number of eV, got {v0r!r}.")
-    return v
-
-
 def _check_g(g_parallel) -> np.ndarray:
     try:
         g = np.asarray(g_parallel, dtype=float)
@@ -171,7 +162,7 @@ def scattering_geometry(
     g = _check_g(g_parallel)
     e = _check_energies(energies)
     theta, phi = (math.radians(v) for v in check_incidence(incidence))
-    v0r = _check_inner_potential(inner_potential)
+    v0r = positive_number(inner_potential, "inner_potential", "number", "eV", zero_ok=True)
     k = np.asarray(wavenumber(e), dtype=float).reshape(-1)
     K2 = k**2 + v0r / HBAR2_2M
     kpi = (k * math.sin(theta))[:, None] * np.array([math.cos(phi), math.sin(phi)])  # (NE, 2)

@@ -39,6 +39,7 @@ from pathlib import Path
 
 import numpy as np
 
+from surfgeo.checks import positive_number
 from surfgeo.errors import InputError, StructureError
 from surfgeo.io.atomic import atomic_output, check_writable
 from surfgeo.io.jsonout import dump_json, to_jsonable
@@ -132,12 +133,7 @@ def set_vacuum(atoms, thickness: float):
     """
     from surfgeo.slab.dipole import slab_heights, surface_normal
 
-    try:
-        t = float(thickness)
-    except (TypeError, ValueError):
-        raise InputError(f"the vacuum thickness must be a number in Angstrom, got {thickness!r}.") from None
-    if not np.isfinite(t) or t <= 0:
-        raise InputError(f"the vacuum thickness must be a positive number in Angstrom, got {thickness!r}.")
+    t = positive_number(thickness, "the vacuum thickness", "number")
     out = atoms.copy()
     cell = np.array(out.cell, dtype=float)
     n = surface_normal(cell)

@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from surfgeo.checks import positive_number
 from surfgeo.errors import LatticeError
 
 #: The five 2D Bravais lattice kinds, in the names used everywhere in surfgeo.
@@ -34,13 +35,7 @@ ANGLE_TOL = 0.01
 
 
 def _positive(name: str, value: float) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise LatticeError(f"{name} must be a number, got {value!r}.") from None
-    if not math.isfinite(v) or v <= 0:
-        raise LatticeError(f"{name} must be a positive length in Angstrom, got {value!r}.")
-    return v
+    return positive_number(value, name, error=LatticeError)
 
 
 def _angle(name: str, value: float) -> float:

@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 from ase import Atoms
 
+from surfgeo.checks import positive_number
 from surfgeo.errors import FileFormatError, StructureError
 
 #: Key of the bulk description in ``atoms.info``.
@@ -171,15 +172,7 @@ def _conventional_cell(family: str, a: float, c: float | None) -> np.ndarray:
 
 
 def _positive(name: str, value) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise StructureError(
-            f"lattice constant {name} must be a number in Angstrom, got {value!r}."
-        ) from None
-    if not math.isfinite(v) or v <= 0:
-        raise StructureError(f"lattice constant {name} must be a positive length in Angstrom, got {value!r}.")
-    return v
+    return positive_number(value, f"lattice constant {name}", error=StructureError)
 
 
 def _looks_like_path(symbol: str) -> bool:

@@ -46,6 +46,7 @@ from fractions import Fraction
 import numpy as np
 from ase import Atoms
 
+from surfgeo.checks import positive_number
 from surfgeo.errors import StructureError
 from surfgeo.lattice import Lattice2D, gauss_reduce
 from surfgeo.slab.bulk import (
@@ -792,12 +793,7 @@ def slab_from_face(
     bulk_atoms = bulk
     nlay = _check_int("layers", layers, 1, MAX_LAYERS)
     if vacuum is not None:
-        try:
-            vac = float(vacuum)
-        except (TypeError, ValueError):
-            raise StructureError(f"vacuum must be a thickness in Angstrom, got {vacuum!r}.") from None
-        if not math.isfinite(vac) or vac < 0:
-            raise StructureError(f"vacuum must be zero or a positive thickness in Angstrom, got {vacuum!r}.")
+        vac = positive_number(vacuum, "vacuum", "thickness", zero_ok=True, error=StructureError)
         vacuum = vac if vac > 0 else None
     if isinstance(size, (int, np.integer)):
         size = (int(size), int(size))

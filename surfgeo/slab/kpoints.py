@@ -22,6 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from surfgeo.checks import positive_number
 from surfgeo.errors import InputError, StructureError
 
 #: Default k-point spacing in 1/Angstrom (2 pi included), a common choice for metal slabs
@@ -117,12 +118,7 @@ def kpoint_mesh(cell, spacing: float = DEFAULT_KSPACING) -> KPointMesh:
     >>> kpoint_mesh(np.diag([2.0, 2.0, 20.0]), 0.5).mesh  # |b| = pi
     (7, 7, 1)
     """
-    try:
-        s = float(spacing)
-    except (TypeError, ValueError):
-        raise InputError(f"the k-point spacing must be a number in 1/Angstrom, got {spacing!r}.") from None
-    if not math.isfinite(s) or s <= 0:
-        raise InputError(f"the k-point spacing must be a positive number in 1/Angstrom, got {spacing!r}.")
+    s = positive_number(spacing, "the k-point spacing", "number", "1/Angstrom")
     b = surface_reciprocal(cell)
     lengths = np.linalg.norm(b, axis=1)
     ratio = lengths / s

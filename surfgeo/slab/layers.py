@@ -2,11 +2,9 @@
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
-from surfgeo.errors import InputError
+from surfgeo.checks import positive_number
 
 #: Default height tolerance (Angstrom): atoms closer than this in z share a layer.
 LAYER_TOL = 0.3
@@ -41,10 +39,7 @@ def group_layers(heights, tol: float = LAYER_TOL) -> list[np.ndarray]:
     >>> [l.tolist() for l in group_layers([0.0, 2.0, 0.05, 2.1])]
     [[0, 2], [1, 3]]
     """
-    if not (isinstance(tol, (int, float, np.integer, np.floating)) and math.isfinite(tol) and tol > 0):
-        raise InputError(
-            f"the layer tolerance must be a positive height in Angstrom (such as 0.3), got {tol}."
-        )
+    tol = positive_number(tol, "the layer tolerance", "height")
     z = np.asarray(heights, dtype=float)
     if z.ndim == 2:
         z = z[:, -1]

@@ -37,6 +37,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from surfgeo.checks import positive_number
 from surfgeo.errors import StructureError
 from surfgeo.slab.info import surface_info, update_surface_info
 from surfgeo.slab.supercell import (
@@ -146,13 +147,7 @@ class Film:
 
 
 def _positive(name: str, v) -> float:
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        raise StructureError(f"{name} must be a number (Angstrom), got {v!r}.") from None
-    if not math.isfinite(f) or f <= 0:
-        raise StructureError(f"{name} must be a positive length in Angstrom, got {v!r}.")
-    return f
+    return positive_number(v, name, error=StructureError)
 
 
 # ---------------------------------------------------------------------------- coincidence

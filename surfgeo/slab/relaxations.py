@@ -34,6 +34,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from surfgeo.checks import positive_number
 from surfgeo.errors import InputError, StructureError
 from surfgeo.lattice import Lattice2D
 from surfgeo.slab.dipole import surface_normal, unwrap_shifts
@@ -655,11 +656,7 @@ def analyse_relaxation(reference, relaxed, *, method: str = "auto", adsorbates=N
     """
     from surfgeo.slab.constraints import default_layer_tol, fixed_mask
 
-    if not (np.isfinite(max_displacement) and max_displacement > 0):
-        raise InputError(
-            "the largest allowed displacement must be a positive distance in Angstrom, "
-            f"got {max_displacement}."
-        )
+    max_displacement = positive_number(max_displacement, "the largest allowed displacement", "distance")
     match = match_atoms(reference, relaxed, method, cell_tol)
     d = match.displacements
     n = len(reference)
