@@ -199,6 +199,13 @@ def test_relaxations_unreadable_and_missing_files(files, capsys):
     assert "cannot read" in err and "broken.vasp" in err
     assert main(["relaxations", str(files / "nope"), "--reference", str(files / "ref.extxyz")]) == 2
     assert "does not exist" in capsys.readouterr().err
+    # Regression: an unknown --format was answered with "cannot tell the format ...; name the ASE
+    # format with --format", as if none had been given.
+    assert main(["relaxations", str(files / "CONTCAR"), "--reference", str(files / "ref.extxyz"),
+                 "--format", "bogus"]) == 2
+    err = capsys.readouterr().err
+    _one_sentence_error(err)
+    assert "'bogus' is not a format ASE can read" in err
 
 
 def test_relaxations_refuses_existing_outputs(files, capsys):

@@ -84,6 +84,7 @@ def read_structure(path: str | os.PathLike, frame: int | str | None = -1, format
     import ase.io
     from ase.io.formats import UnknownFileTypeError
 
+    given = format
     if format is None:
         format = _ENDINGS.get(p.suffix.lower())
     try:
@@ -103,6 +104,11 @@ def read_structure(path: str | os.PathLike, frame: int | str | None = -1, format
     except SurfgeoError:
         raise
     except UnknownFileTypeError as exc:
+        if given is not None:
+            raise FileFormatError(
+                f"{given!r} is not a format ASE can read; name one such as vasp, vasp-out, espresso-out, "
+                "extxyz or aims."
+            ) from None
         raise FileFormatError(
             f"cannot tell the format of {p} ({_short(exc)}); name the ASE format with --format "
             "(e.g. vasp, vasp-out, espresso-out, extxyz, aims)."
