@@ -198,3 +198,22 @@ def test_model_file_builds_when_supported(tmp_path, capsys):
     code, text, err = _run(capsys, "build", str(models[0]), "-o", str(out), "--relax", "d12=-1%")
     assert code == 0, err
     assert ase.io.read(out).info["surfgeo"]["relaxations"][-1]["changes"]["d12"]["value"] == -1.0
+
+
+def test_slab_figure_marks_adsorbates_by_element():
+    # Regression: adsorbates were drawn like substrate atoms (shaded by depth only), so CO on the
+    # step edge of Pt(533) could not be told from Pt in the picture.
+    from pathlib import Path
+
+    from surfgeo.plot.slab import slab_figure
+    from surfgeo.slab.model import build_model
+
+    model = Path(__file__).resolve().parent.parent / "structures" / "pt533_co_step_edge.toml"
+    fig = slab_figure(build_model(model), title="test")
+    top, side = fig.axes[0], fig.axes[1]
+    labels = [t.get_text() for t in top.get_legend().get_texts()]
+    assert "adsorbate C" in labels and "adsorbate O" in labels
+    assert [t.get_text() for t in side.get_legend().get_texts()] == ["adsorbate C", "adsorbate O"]
+    import matplotlib.pyplot as plt
+
+    plt.close(fig)

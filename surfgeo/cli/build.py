@@ -132,6 +132,17 @@ def _output_format(path: str) -> str:
     return fmt
 
 
+def _figure_title(summary: dict) -> str:
+    """``Pt(5 3 3): COPt16``, or the model's name and the formula for a model file."""
+    model = summary.get("model") or {}
+    head = model.get("name")
+    if not head:
+        bulk = (summary.get("bulk") or {}).get("formula") or ""
+        miller = summary.get("miller")
+        head = bulk + ("(" + " ".join(str(v) for v in miller) + ")" if miller else "")
+    return f"{head}: {summary.get('formula', '')}" if head else summary.get("formula", "")
+
+
 def build_from_args(args):
     """The slab (and the bulk crystal, or None for a model) for parsed ``build`` arguments."""
     from surfgeo.errors import InputError
@@ -214,7 +225,7 @@ def run(args) -> int:
     if args.plot:
         from surfgeo.plot.slab import save_slab_figure
 
-        save_slab_figure(atoms, args.plot, force=args.force, title=summary.get("formula", ""))
+        save_slab_figure(atoms, args.plot, force=args.force, title=_figure_title(summary))
     if args.json:
         dump_json(summary, args.json, force=args.force)
     if args.json != "-":
