@@ -374,7 +374,8 @@ def _sources(s_sub: np.ndarray, zero: np.ndarray, noise: np.ndarray, k: float, g
     return src
 
 
-def _pooled_noise(dev: np.ndarray, ok: np.ndarray, guess: np.ndarray, m: int) -> np.ndarray:
+def _pooled_noise(dev: np.ndarray, ok: np.ndarray, guess: np.ndarray, m: int,
+                  pool: bool = True) -> np.ndarray:
     """Standard deviation of ``dev`` per mesh, pooled over the 3 x 3 neighbouring meshes.
 
     Entries beyond 3 ``guess`` (per mesh) are clipped away and the result is corrected for
@@ -390,10 +391,11 @@ def _pooled_noise(dev: np.ndarray, ok: np.ndarray, guess: np.ndarray, m: int) ->
     n = keep.sum(axis=3).sum(axis=1).astype(np.float64)
     s1 = dk.sum(axis=3, dtype=np.float64).sum(axis=1)
     s2 = (dk * dk).sum(axis=3, dtype=np.float64).sum(axis=1)
-    n, s1, s2 = (ndi.uniform_filter(a, size=3, mode="constant") for a in (n, s1, s2))
+    if pool:
+        n, s1, s2 = (ndi.uniform_filter(a, size=3, mode="constant") * 9 for a in (n, s1, s2))
     with np.errstate(divide="ignore", invalid="ignore"):
         var = s2 / n - (s1 / n) ** 2
-    var = np.where(n * 9 >= 8, var, np.nan)
+    var = np.where(n >= 8, var, np.nan)
     return np.sqrt(np.maximum(var, 0) / 0.97334)
 
 
@@ -514,6 +516,8 @@ class _Front:
     s_med: np.ndarray  # median of the filtered image per mesh
     s_noise: np.ndarray  # robust noise of the filtered image per mesh (smoothed)
     raw_noise: np.ndarray  # the same before smoothing
+    pixel_var: np.ndarray  # variance of single pixels per mesh (pixel differences), or NaN
+    mesh_fraction: np.ndarray  # fraction of each mesh's pixels that are usable
     usable_mesh: np.ndarray
     rows: np.ndarray  # candidate local maxima (padded coordinates = image coordinates)
     cols: np.ndarray
@@ -591,6 +595,7 @@ def _front(
         background = up.full(bg0)
         np.subtract(smooth, background, out=smooth)
         bg, s_med, s_noise, raw_noise = bg0, zero, noise, noise
+        pixel_var = np.full(bg0.shape, np.nan)
     else:
         ok = ok_sub & ~_sources(s_sub, zero, noise, 2.5, sigma, m)
         plane, wt = _mesh_planes(img_sub, ok & ~sat[::2, ::2] if any_sat else ok, m, b, bg0, pix_noise0)
@@ -620,6 +625,17 @@ def _front(
             raw_noise = _pooled_noise(dev, ok, raw_noise, m)
             raw_noise = np.maximum(_fill_meshes(raw_noise, np.isfinite(raw_noise) & (wt > 0)), floor)
         s_noise = _smooth_meshes(raw_noise, (wt > 0).astype(float))
+        # single-pixel variance for the photon-transfer gain: differences of horizontal
+        # neighbours two pixels apart (independent for white noise; var = 2 sigma^2)
+        diff = np.zeros_like(img_sub)
+        diff[:, :-1] = img_sub[:, 1:] - img_sub[:, :-1]
+        both = ok.copy()
+        both[:, :-1] &= ok[:, 1:]
+        both[:, -1] = False
+        spread = np.sqrt(2) * noise / np.sqrt(gaussian_kernel_norm2(sigma))
+        for _ in range(2):  # the second pass clips at 3 of its own sigma
+            spread = _pooled_noise(diff, both, np.where(np.isfinite(spread), spread, np.inf), m, pool=False)
+        pixel_var = spread**2 / 2
 
     # candidates: above a conservative piecewise-constant threshold, then exact test
     thr = ndi.minimum_filter(s_med + 0.9 * threshold * s_noise, size=3, mode="nearest").astype(np.float32)
@@ -666,7 +682,8 @@ def _front(
     rows, cols, stat = rows[keep], cols[keep], stat[keep]
     peak = np.column_stack([cols + dx[keep], rows + dy[keep]])
     return _Front(filled=filled, background=background, valid=valid, saturated=sat, bg_mesh=bg,
-                  s_med=s_med, s_noise=s_noise, raw_noise=raw_noise, usable_mesh=usable_mesh,
+                  s_med=s_med, s_noise=s_noise, raw_noise=raw_noise, pixel_var=pixel_var, mesh_fraction=w0,
+                  usable_mesh=usable_mesh,
                   rows=rows, cols=cols, stat=stat, peak=peak, b=b, filtered=smooth)
 
 
@@ -1026,13 +1043,15 @@ def _estimate_gain(front: _Front, sigma: float) -> float | None:
     """Camera gain (ADU per photon) by photon transfer across background meshes, or None.
 
     Fits var = g * level + c over the usable meshes (level: the mesh background; var: the
-    per-pixel noise, i.e. the band-passed image's noise divided by the filter's norm) by
+    single-pixel variance from differences of neighbouring pixels, spots left out) by
     least squares with 3-sigma rejection (J. R. Janesick, Photon Transfer, SPIE Press
     (2007)). Returns None unless the levels span a useful range (10-90 % spread above 10 %
     of the median) and g is positive and determined to 25 %.
     """
-    level = (front.bg_mesh + front.s_med)[front.usable_mesh]
-    var = (front.raw_noise[front.usable_mesh] ** 2) / gaussian_kernel_norm2(sigma)
+    # whole meshes only: next to a mask edge the level at the mesh centre is extrapolated
+    use = front.usable_mesh & np.isfinite(front.pixel_var) & (front.mesh_fraction > 0.99)
+    level = (front.bg_mesh + front.s_med)[use]
+    var = front.pixel_var[use]
     if level.size < 8:
         return None
     lo, hi = np.percentile(level, [10, 90])
