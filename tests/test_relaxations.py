@@ -229,6 +229,36 @@ def test_index_matching_needs_the_same_order():
     assert match_atoms(ref, rel).method == "distance"
 
 
+def test_order_note_only_when_the_file_keeps_the_reference_order():
+    # Regression: a shuffled single-element file was told "the file keeps the species order ...
+    # use the index method", which is true of the species only and would be wrong advice.
+    rng = np.random.default_rng(4)
+    ref = pt111((3, 3, 4))
+    shuffled = ref[rng.permutation(len(ref))]
+    match = match_atoms(ref, shuffled)
+    assert match.method == "distance" and match.note == ""
+    assert analyse_relaxation(ref, shuffled).notes == []
+    # species grouped as a VASP file groups them: same species sequence, atoms reordered
+    alloy = ref.copy()
+    alloy.symbols[:9] = "Ni"  # the bottom layer (ASE's fcc111 lists layers bottom first)
+    grouped = alloy[np.concatenate([rng.permutation(9), 9 + rng.permutation(len(ref) - 9)])]
+    assert grouped.get_chemical_symbols() == alloy.get_chemical_symbols()
+    assert match_atoms(alloy, grouped).note == ""
+    # the reference order kept, but two neighbouring atoms each moved past the midpoint towards
+    # the other's site: only then is "matched by distance instead of by index" worth a note
+    top = np.nonzero(ref.get_tags() == 1)[0]
+    i = int(top[0])
+    j = int(top[np.argmin(np.linalg.norm(ref.positions[top[1:]] - ref.positions[i], axis=1)) + 1])
+    swapped = ref.copy()
+    swapped.positions[i] = ref.positions[j] + 0.05 * (ref.positions[i] - ref.positions[j])
+    swapped.positions[j] = ref.positions[i] + 0.05 * (ref.positions[j] - ref.positions[i])
+    match = match_atoms(ref, swapped)
+    # Source: the construction above (each of the two atoms ends 0.05 of a bond from the other's site)
+    assert match.order[i] == j and match.order[j] == i
+    assert "lists the atoms in the reference order, but 2 of them" in match.note
+    assert "use the index method" in match.note
+
+
 # ----------------------------------------------------------------------------- the assignment
 def _spy(monkeypatch, module, name):
     calls = []

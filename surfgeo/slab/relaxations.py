@@ -320,10 +320,14 @@ def match_atoms(reference, relaxed, method: str = "auto", cell_tol: float = CELL
     if method != "index":
         same = np.array_equal(order, np.arange(len(order)))
         used = "index" if same else "distance"
-        if not same and np.array_equal(zr, zx):
-            moved = int(np.count_nonzero(order != np.arange(len(order))))
-            note = (f"the file keeps the species order but {moved} atoms lie nearer to other reference "
-                    "positions; matched by distance (use the index method to keep the file order).")
+        moved = int(np.count_nonzero(order != np.arange(len(order))))
+        # The file keeps the reference order only when the species agree index by index AND
+        # most atoms are matched to their own index; a shuffled file (single-element slabs
+        # and species-grouped files have identical species sequences too) gets no such note.
+        if not same and np.array_equal(zr, zx) and 2 * moved <= len(order):
+            note = (f"the file lists the atoms in the reference order, but {moved} of them lie nearer to "
+                    "other reference positions and were matched by distance (use the index method to "
+                    "keep the file order).")
     return Matching(order=order, method=used, displacements=d, reference_local=p, note=note)
 
 
