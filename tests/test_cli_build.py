@@ -148,6 +148,18 @@ def test_bad_output_names(tmp_path, capsys):
     assert os.listdir(tmp_path) == []
 
 
+@pytest.mark.parametrize("name", ["slab.png", "slab.SVG", "slab.jpg", "slab.pdf", "slab.pov", "slab.html",
+                                  "slab.gif"])
+def test_picture_endings_are_refused_for_the_structure(tmp_path, capsys, name):
+    # Regression: -o slab.png wrote ASE's picture of the slab as the "structure" output.
+    code, _, err = _run(capsys, "build", "--crystal", "Cu", "--miller", "1", "1", "1",
+                        "-o", str(tmp_path / name))
+    assert code == 2
+    _one_sentence(err)
+    assert "not a structure file" in err and "--plot slab.png" in err
+    assert os.listdir(tmp_path) == []
+
+
 def test_colliding_output_names_leave_nothing(tmp_path, capsys):
     out = tmp_path / "s.extxyz"
     code, _, err = _run(capsys, "build", "--crystal", "Cu", "--miller", "1", "1", "1", "-o", str(out),

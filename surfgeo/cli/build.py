@@ -107,12 +107,28 @@ def _charges(text: str | None) -> dict[str, float] | None:
     return out
 
 
+#: ASE formats (and picture endings) that are drawings, animations or web pages, not structure
+#: files: ``-o`` refuses them and points to ``--plot``.
+PICTURE_FORMATS = frozenset({
+    "png", "svg", "jpg", "jpeg", "pdf", "eps", "ps", "gif", "mp4", "pov", "x3d", "html", "vti",
+    "tif", "tiff", "bmp", "webp",
+})
+
+
 def _output_format(path: str) -> str:
     """The ASE format name for the output file, from its name."""
+    from pathlib import Path
+
     from ase.io.formats import filetype
 
     from surfgeo.errors import InputError
 
+    suffix = Path(path).suffix.lower().lstrip(".")
+    if suffix in PICTURE_FORMATS:
+        raise InputError(
+            f"-o {path}: .{suffix} is a drawing format, not a structure file; write the structure as "
+            f".extxyz, .cif, .vasp or another structure format and draw it with --plot {Path(path).stem}.png."
+        )
     try:
         fmt = filetype(path, read=False)
     except Exception:
