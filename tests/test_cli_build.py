@@ -108,6 +108,9 @@ BAD = [
     (["--crystal", "Cu", "--miller", "1", "1", "1", "--layers", "0"], "layers"),
     (["--crystal", "Cu", "--miller", "3", "2", "1", "--rectangular"], "no rectangular cell"),
     (["--crystal", "Cu", "--miller", "1", "1", "1", "--charges", "Cu"], "--charges"),
+    # Regression: --a 0.5 built Pt slabs with atoms 0.35 A apart (fcc nearest neighbours a/sqrt2)
+    (["--crystal", "Pt", "--a", "0.5", "--miller", "1", "1", "1"], "two Pt atoms 0.35 A apart"),
+    (["--crystal", "Pt", "--miller", "1", "1", "1", "--orthogonal", "--vacuum", "0.2"], "a vacuum of 0.2 A"),
 ]
 
 

@@ -7,6 +7,7 @@ import math
 import ase.io
 import numpy as np
 import pytest
+from ase import Atoms
 from ase.build import bulk as ase_bulk
 from ase.data import atomic_numbers, reference_states
 
@@ -168,3 +169,50 @@ def test_translation_lattice_agrees_with_spglib(formula, structure, a, c, ase_kw
     sym = spglib_call("get_symmetry", (b.cell[:], b.get_scaled_positions(), b.numbers), symprec=1e-3)
     n_pure = sum(1 for W in sym["rotations"] if np.array_equal(W, np.eye(3, dtype=int)))
     assert abs(np.linalg.det(translation_lattice(b))) == pytest.approx(b.get_volume() / n_pure)
+
+
+@pytest.mark.parametrize(
+    "args,kwargs,distance,minimum",
+    [
+        # Common practice, no source: nearest neighbours at a/sqrt2 in fcc, c along the hcp axis
+        # when c is shorter than a, a/2 between the two species of rocksalt.
+        # Source: covalent radii of ase.data.covalent_radii (Cordero et al. 2008): Pt 1.36 A,
+        # Ru 1.46 A, Na 1.66 A, Cl 1.02 A; the minimum is half the sum of the two radii.
+        (("Pt",), {"a": 0.5}, 0.5 / math.sqrt(2), 1.36),
+        (("Ru", "hcp"), {"a": 2.7, "c": 1.0}, 1.0, 1.46),
+        (("NaCl", "rocksalt"), {"a": 2.0}, 1.0, (1.66 + 1.02) / 2),
+    ],
+)
+def test_crystals_with_overlapping_atoms_are_refused(args, kwargs, distance, minimum):
+    # Regression: --a 0.5 for Pt built a slab with atoms 0.35 A apart.
+    with pytest.raises(StructureError) as info:
+        bulk_crystal(*args, **kwargs)
+    msg = str(info.value)
+    assert f"{distance:.2f} A apart" in msg and f"minimum of {minimum:.2f} A" in msg
+    assert "lattice constants" in msg and "\n" not in msg
+
+
+def test_overlap_limit_sits_at_half_the_covalent_radii():
+    from ase.data import covalent_radii
+
+    from surfgeo.slab.bulk import CONTACT_FACTOR, closest_contact
+
+    r = covalent_radii[atomic_numbers["Pt"]]
+    a_limit = CONTACT_FACTOR * 2 * r * math.sqrt(2)  # nearest neighbours a/sqrt2 at the limit
+    assert closest_contact(ase_bulk("Pt", "fcc", a=a_limit * 1.001, cubic=True)) is None
+    i, j, d, need = closest_contact(ase_bulk("Pt", "fcc", a=a_limit * 0.999, cubic=True))
+    assert need == pytest.approx(2 * CONTACT_FACTOR * r)
+    assert d == pytest.approx(0.999 * a_limit / math.sqrt(2))
+    # an atom overlapping its own periodic image (a cell that is too short) counts as well
+    assert closest_contact(Atoms("Pt", cell=[0.5, 5, 5], pbc=True)) is not None
+    assert bulk_crystal("Pt", a=a_limit * 1.001).info["surfgeo_bulk"]["a"] == pytest.approx(a_limit * 1.001)
+
+
+def test_file_with_overlapping_atoms_is_refused(tmp_path):
+    cu = ase_bulk("Cu", "fcc", a=3.61, cubic=True)
+    cu.append("Cu")
+    cu.positions[-1] = cu.positions[0] + [0.3, 0, 0]  # a doubled site, as from partial occupancy
+    path = tmp_path / "doubled.cif"
+    ase.io.write(path, cu)
+    with pytest.raises(StructureError, match=r"the crystal in .*doubled.cif puts two Cu atoms 0.30 A apart"):
+        bulk_crystal(str(path))

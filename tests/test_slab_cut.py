@@ -403,3 +403,17 @@ def test_spglib_layer_groups_of_own_slabs(element, miller, layers, group, plane)
     if group is not None:
         assert sym.layer_group == group
     assert sym.plane_group == plane
+
+
+def test_thin_vacuum_that_overlaps_the_periodic_image_is_refused():
+    # Derived by hand: with c along the normal (orthogonal), the bottom layer's image lies straight
+    # above the bottom layer, so an ABC(A) stack of 4 layers puts the image of the bottom A layer
+    # the vacuum gap above the top A layer. Minimum: half the sum of the covalent radii
+    # (Source: ase.data.covalent_radii, Cordero et al. 2008: Pt 1.36 A).
+    with pytest.raises(StructureError, match=r"a vacuum of 1 A puts two Pt atoms 1.00 A apart.*1.36 A"):
+        surface_slab("Pt", (1, 1, 1), layers=4, vacuum=1.0, orthogonal=True)
+    ok = surface_slab("Pt", (1, 1, 1), layers=4, vacuum=1.4, orthogonal=True)
+    assert ok.cell[2, 2] - np.ptp(ok.positions[:, 2]) == pytest.approx(1.4)
+    # with c along the lattice stacking the image continues the ABC sequence: no overlap
+    tilted = surface_slab("Pt", (1, 1, 1), layers=4, vacuum=0.5)
+    assert tilted.cell[2, 2] - np.ptp(tilted.positions[:, 2]) == pytest.approx(0.5)

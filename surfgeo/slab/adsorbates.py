@@ -33,6 +33,7 @@ from fractions import Fraction
 import numpy as np
 
 from surfgeo.errors import StructureError
+from surfgeo.slab.bulk import CONTACT_FACTOR as _BULK_CONTACT_FACTOR
 from surfgeo.slab.info import surface_info, update_surface_info
 from surfgeo.slab.sites import PeriodicImages, find_sites
 from surfgeo.slab.supercell import (
@@ -44,8 +45,9 @@ from surfgeo.slab.supercell import (
     slab_cell2d,
 )
 
-#: Two atoms closer than this fraction of the sum of their covalent radii overlap.
-CONTACT_FACTOR = 0.5
+#: Two atoms closer than this fraction of the sum of their covalent radii overlap (the value of
+#: :data:`surfgeo.slab.bulk.CONTACT_FACTOR`, shared with bulks and slabs).
+CONTACT_FACTOR = _BULK_CONTACT_FACTOR
 
 
 # ---------------------------------------------------------------------------- building blocks

@@ -29,6 +29,11 @@ from surfgeo.errors import FileFormatError, StructureError
 #: Key of the bulk description in ``atoms.info``.
 BULK_KEY = "surfgeo_bulk"
 
+#: Two atoms closer than this fraction of the sum of their covalent radii overlap: bulks, slabs,
+#: adsorbates and model files all refuse such structures (``surfgeo.slab.adsorbates`` uses the
+#: same value).
+CONTACT_FACTOR = 0.5
+
 _FCC = [(0, 0, 0), (0, 0.5, 0.5), (0.5, 0, 0.5), (0.5, 0.5, 0)]
 
 
@@ -155,6 +160,53 @@ def spglib_call(name: str, *args, **kwargs):
             return getattr(spglib, name)(*args, **kwargs)
         except Exception:  # spglib raises its own SpglibError on failure
             return None
+
+
+def closest_contact(atoms: Atoms, factor: float = CONTACT_FACTOR) -> tuple[int, int, float, float] | None:
+    """The closest pair of atoms that overlap in a fully periodic cell, or None.
+
+    Two atoms i, j overlap when they are closer than ``factor * (r_i + r_j)`` with the
+    covalent radii of ``ase.data.covalent_radii`` (B. Cordero et al., Dalton Trans. 2832
+    (2008)); an atom may also overlap its own periodic image (a cell that is too small).
+
+    Returns
+    -------
+    (i, j, distance, minimum) or None
+        Atom indices, their distance and the smallest allowed distance (Angstrom).
+    """
+    from ase.data import covalent_radii
+    from ase.neighborlist import neighbor_list
+
+    if len(atoms) == 0:
+        return None
+    radii = factor * covalent_radii[atoms.numbers]
+    i, j, d = neighbor_list("ijd", atoms, radii.tolist(), self_interaction=False)
+    if len(d) == 0:
+        return None
+    limit = radii[i] + radii[j]
+    bad = np.nonzero(d < limit - 1e-9)[0]
+    if len(bad) == 0:
+        return None
+    k = int(bad[np.argmin(d[bad])])
+    return int(i[k]), int(j[k]), float(d[k]), float(limit[k])
+
+
+def check_distances(atoms: Atoms, what: str, advice: str, factor: float = CONTACT_FACTOR) -> None:
+    """Raise :class:`StructureError` if two atoms of a periodic structure overlap.
+
+    ``what`` names the structure (``"the fcc Pt crystal with a = 0.5 A"``), ``advice`` says what to
+    change (``"check the lattice constants"``); see :func:`closest_contact` for the rule.
+    """
+    hit = closest_contact(atoms, factor)
+    if hit is None:
+        return
+    i, j, d, need = hit
+    s = atoms.get_chemical_symbols()
+    pair = f"two {s[i]} atoms" if s[i] == s[j] else f"{s[i]} and {s[j]} atoms"
+    raise StructureError(
+        f"{what} puts {pair} {d:.2f} A apart, closer than the sane minimum of {need:.2f} A "
+        f"({factor:g} times the sum of their covalent radii); {advice}."
+    )
 
 
 def _spacegroup(atoms: Atoms, symprec: float = 1e-3) -> tuple[int, str]:
@@ -326,6 +378,9 @@ def bulk_crystal(
     frac = np.array([p for _, p in sites], dtype=float)
     syms = [names[i] for i, _ in sites]
     atoms = Atoms(syms, scaled_positions=frac, cell=cell, pbc=True)
+    consts = f"a = {a:g} A" + (f", c = {c:g} A" if proto["family"] == "hexagonal" else "")
+    check_distances(atoms, f"the {proto_name} {symbol} crystal with {consts}",
+                    "check the lattice constants (Angstrom)")
     sg, sg_symbol = _spacegroup(atoms)
     if sg != proto["sg"] and not (len(set(names)) < len(names)):
         raise StructureError(
@@ -404,6 +459,8 @@ def read_bulk(path: str | os.PathLike, a: float | None = None, c: float | None =
     cell = np.asarray(atoms.cell[:], dtype=float)
     if abs(np.linalg.det(cell)) < 1e-6 or not all(atoms.pbc):
         raise StructureError(f"the structure in {p} is not a periodic 3D crystal (it needs a full cell).")
+    check_distances(atoms, f"the crystal in {p}",
+                    "check the file for overlapping or partly occupied sites and its cell")
     spg_cell = (cell, atoms.get_scaled_positions(), atoms.numbers)
     std = spglib_call("standardize_cell", spg_cell, to_primitive=False, no_idealize=False, symprec=symprec)
     data = spglib_call("get_symmetry_dataset", spg_cell, symprec=symprec)
@@ -566,6 +623,9 @@ def _integer_row_basis(rows: np.ndarray) -> np.ndarray:
 
 __all__ = [
     "BULK_KEY",
+    "CONTACT_FACTOR",
+    "check_distances",
+    "closest_contact",
     "STRUCTURES",
     "bulk_crystal",
     "read_bulk",

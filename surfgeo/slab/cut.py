@@ -50,8 +50,10 @@ from surfgeo.checks import positive_number
 from surfgeo.errors import StructureError
 from surfgeo.lattice import Lattice2D, gauss_reduce
 from surfgeo.slab.bulk import (
+    CONTACT_FACTOR,
     bulk_crystal,
     bulk_description,
+    check_distances,
     is_hexagonal_cell,
     translation_lattice,
 )
@@ -907,6 +909,14 @@ def slab_from_face(
     znum = np.array([atomic_numbers[x] for x in face.basis_symbols])
     atoms = Atoms(numbers=znum[sel_all], positions=pos, cell=cell, pbc=(True, True, True))
     atoms.set_tags(tags)
+    if vacuum is not None:
+        # the bulk's own distances were checked when it was built; only a thin vacuum can bring
+        # the top layer and the periodic image of the bottom layer closer than a sane minimum
+        from ase.data import covalent_radii
+
+        if vacuum < 2 * CONTACT_FACTOR * float(covalent_radii[np.unique(znum)].max()):
+            check_distances(atoms, f"a vacuum of {vacuum:g} A",
+                            "give a larger vacuum, or 0 for a bulk-periodic cell")
 
     term = dict(terms[tidx])
     term.pop("top_group", None)
