@@ -102,7 +102,7 @@ SUPPRESS_PX = 2.5
 #: Hypotheses given the full score after the pre-emptive one.
 N_FULL = 300
 #: Hypotheses refined by local optimisation.
-N_REFINE = 12
+N_REFINE = 24
 
 
 # =============================================================================== screen maps
@@ -478,8 +478,9 @@ def _centre_terms(
             _PARTNERS["tree"] = tree
         _PARTNERS[key] = cached
     found, usable = cached
-    expected = usable & (rho <= rim)
-    return outside, int(found.sum() - (expected & ~found).sum())
+    # a partner lies at the same distance from the centre as its spot, so it is on the screen
+    # whenever the spot is; only the image edge and the gun can hide it
+    return outside, int(found.sum() - (usable & ~found).sum())
 
 
 def _affine_fit(P: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -724,9 +725,13 @@ def _preemptive(C, AL, MM, z, tree, screen, chunk: int) -> np.ndarray:
         r = np.abs(q - c[:, None]).ravel()
         tol = 3.0 + 0.03 * r
         d, _ = tree.query(pts, k=1, distance_upper_bound=float(tol.max()))
-        hit = (d <= tol).reshape(q.shape)
+        hit_flat = d <= tol
+        hit = hit_flat.reshape(q.shape)
+        # soft count: a match at distance d counts 1 - (d / tol)^2 / 2, so that among the many
+        # hypotheses of a dense pattern that hit as many spots the well-fitting ones come first
+        soft = np.where(hit_flat, 1.0 - 0.5 * (np.minimum(d, tol) / tol) ** 2, 0.0).reshape(q.shape)
         inside = _inside(pts, screen, 3.0).reshape(q.shape)
-        out[s : s + chunk] = hit.sum(1) - 0.5 * (inside & ~hit).sum(1)
+        out[s : s + chunk] = soft.sum(1) - 0.5 * (inside & ~hit).sum(1)
     return out
 
 
@@ -1318,6 +1323,72 @@ def calibration_candidates(
     return out
 
 
+def refine_calibration(
+    calibration: Calibration,
+    positions,
+    k_parallel,
+    energy_eV: float,
+    *,
+    fit_distance: bool = True,
+    robust_scale_px: float = 1.0,
+) -> Calibration:
+    """Refit a calibration's screen to spots whose parallel momenta are known.
+
+    Used after indexing: every spot the best candidate explains (integer and fractional
+    order) then anchors the screen, not only the integer-order spots, which is a much longer
+    lever arm when few integer spots are on the screen. Robust (soft-L1) least squares from
+    the current parameters; the mirror and the energy offset are kept.
+
+    Parameters
+    ----------
+    calibration : Calibration
+        Starting point.
+    positions : array_like, shape (n, 2)
+        Measured positions, px.
+    k_parallel : array_like, shape (n, 2)
+        The parallel momenta they are assigned to, 1/Angstrom.
+    energy_eV : float
+        Nominal energy, eV.
+
+    Returns
+    -------
+    Calibration
+        With ``n_matched = n`` and ``rms_px`` of the refit; the integer-spot ``matches`` of
+        the starting calibration are kept for the record.
+    """
+    P = _positions(positions)
+    kp = np.asarray(k_parallel, dtype=float).reshape(-1, 2)
+    if len(P) != len(kp) or len(P) < MIN_INTEGER_SPOTS:
+        raise InputError(f"a calibration refit needs at least {MIN_INTEGER_SPOTS} spots with momenta.")
+    screen = calibration.screen
+    E = calibration.energy(energy_eV)
+    mirror = screen.mirror
+    n_extra = 1 if (fit_distance and isinstance(screen, CameraScreen)) else 0
+    x0 = list(_params_from_screen(screen))
+    if n_extra:
+        x0.append(_distance_param(screen))
+    x0 = np.array(x0)
+
+    def resid(x):
+        return np.nan_to_num((_model_pixels(x, mirror, screen, kp, E, n_extra, False) - P).ravel(), nan=1e3)
+
+    res = least_squares(resid, x0, loss="soft_l1", f_scale=robust_scale_px, x_scale="jac")
+    fitted = _screen_from_fit(screen, res.x, mirror, n_extra)
+    r = _model_pixels(res.x, mirror, screen, kp, E, n_extra, False) - P
+    rms = float(np.sqrt(np.nanmean(np.sum(r * r, axis=1))))
+    return Calibration(
+        screen=fitted,
+        energy_offset=calibration.energy_offset,
+        energies=calibration.energies,
+        lattice=calibration.lattice,
+        rms_px=rms,
+        n_matched=len(P),
+        uncertainties=_uncertainties(res, mirror, screen, n_extra, False),
+        matches=calibration.matches,
+        fitted_energy_offset=calibration.fitted_energy_offset,
+    )
+
+
 def _refit(images, screen, res, mirror, n_extra, fit_offset, f_scale):
     """Least squares again from the previous solution (all parameters)."""
     x0 = res.x
@@ -1358,5 +1429,6 @@ __all__ = [
     "normalised_points",
     "on_screen",
     "pixels_from_normalised",
+    "refine_calibration",
     "MIN_SPOTS",
 ]

@@ -101,6 +101,9 @@ EDGE_MARGIN_PX = 2.0
 #: A later calibration hypothesis replaces the preferred one only when its best candidate scores
 #: lower by more than this (a likelihood ratio of e^10).
 CALIBRATION_SWITCH = 10.0
+#: A calibration is refined with the spots of its best candidate when that explains at least this
+#: fraction of the measured spots.
+REFINE_FRACTION = 0.25
 #: Candidates listed by default.
 DEFAULT_TOP = 10
 
@@ -123,6 +126,7 @@ class _Table:
     hnf_orbit: np.ndarray  # (K,)
     basis: np.ndarray  # (K, 2, 2) reduced label bases (rows)
     basis_inv: np.ndarray  # (K, 2, 2)
+    orbit_start: np.ndarray  # (n_orbits,) first row of each orbit in hnf (members are contiguous)
 
 
 _TABLES: dict = {}
@@ -179,14 +183,18 @@ def _table(lattice: Lattice2D, max_area: int) -> _Table:
                     owner.append(len(orbits) - 1)
                     bases.append(R)
     basis = np.array(bases)
+    owner = np.array(owner)
+    starts = np.flatnonzero(np.r_[True, owner[1:] != owner[:-1]])
+    assert len(starts) == len(orbits) and np.all(owner[starts] == np.arange(len(orbits)))
     table = _Table(
         int(max_area),
         den,
         orbits,
         np.array(hnfs, dtype=np.int64),
-        np.array(owner),
+        owner,
         basis,
         np.linalg.inv(basis),
+        starts,
     )
     _TABLES[key] = table
     return table
@@ -470,27 +478,46 @@ class _Grid:
 
 
 def _grid(ctx: _Context, n: int) -> _Grid:
+    """The visible points of denominator ``n`` (see :func:`_grids`)."""
+    return _grids(ctx, [n])[n]
+
+
+def _grids(ctx: _Context, areas) -> dict:
+    """Visible fractional grid points for every denominator in ``areas``, in one pass.
+
+    Grid points ``(i / n, j / n)`` inside the acceptance disc are put on the screen; those on
+    it are kept with their residue code ``(i mod n) n + (j mod n)``, and ``counts`` holds the
+    number of clearly visible ones (``EDGE_MARGIN_PX`` from an edge) per residue.
+    """
     lat = ctx.lattice
     kmax = ctx.k * math.sin(math.radians(ctx.screen.acceptance_deg))
     la = np.linalg.norm(lat.vectors, axis=1)
     H = kmax * la / (2 * math.pi)
-    r1 = np.arange(-math.ceil(H[0] * n), math.ceil(H[0] * n) + 1)
-    r2 = np.arange(-math.ceil(H[1] * n), math.ceil(H[1] * n) + 1)
-    I, Jg = np.meshgrid(r1, r2, indexing="ij")
-    num = np.stack([I.ravel(), Jg.ravel()], axis=1)
-    kp = (num / n) @ lat.reciprocal
-    inside = np.einsum("ij,ij->i", kp, kp) <= kmax * kmax
-    num, kp = num[inside], kp[inside]
-    w = normalised_points(ctx.screen, kp, ctx.k)
+    nums, bounds = [], [0]
+    for n in areas:
+        r1 = np.arange(-math.ceil(H[0] * n), math.ceil(H[0] * n) + 1)
+        r2 = np.arange(-math.ceil(H[1] * n), math.ceil(H[1] * n) + 1)
+        I, Jg = np.meshgrid(r1, r2, indexing="ij")
+        block = np.stack([I.ravel(), Jg.ravel()], axis=1)
+        kb = (block / n) @ lat.reciprocal
+        block = block[np.einsum("ij,ij->i", kb, kb) <= kmax * kmax]
+        nums.append(block)
+        bounds.append(bounds[-1] + len(block))
+    num = np.concatenate(nums)
+    den = np.repeat(np.asarray(areas, dtype=float), np.diff(bounds))
+    kp = (num / den[:, None]) @ lat.reciprocal
     from surfgeo.measure.calibrate import pixels_from_normalised
 
-    px = pixels_from_normalised(ctx.screen, w)
+    px = pixels_from_normalised(ctx.screen, normalised_points(ctx.screen, kp, ctx.k))
     vis = on_screen(ctx.screen, px, kp, ctx.k)
     clear = on_screen(ctx.screen, px, kp, ctx.k, margin=EDGE_MARGIN_PX)
-    num, px, clear = num[vis], px[vis], clear[vis]
-    code = (num[:, 0] % n) * n + (num[:, 1] % n)
-    counts = np.bincount(code[clear], minlength=n * n)
-    return _Grid(num, code, px, clear, counts)
+    out = {}
+    for n, a, b in zip(areas, bounds[:-1], bounds[1:], strict=True):
+        sel = np.flatnonzero(vis[a:b]) + a
+        nm, pn, cl = num[sel], px[sel], clear[sel]
+        code = (nm[:, 0] % n) * n + (nm[:, 1] % n)
+        out[n] = _Grid(nm, code, pn, cl, np.bincount(code[cl], minlength=n * n))
+    return out
 
 
 def _weights(ctx: _Context, q: float, strays: float) -> tuple[float, float]:
@@ -521,7 +548,8 @@ def index_pattern(
     min_unexplained: int = 3,
     show_progress: bool | None = None,
     detail: bool = True,
-    n_calibrations: int = 8,
+    n_calibrations: int = 12,
+    refine: bool | None = None,
 ) -> IndexResult:
     """Index a measured pattern: rank the superstructures that explain the spots.
 
@@ -553,6 +581,9 @@ def index_pattern(
         Draw a progress bar (default: when stderr is a terminal).
     detail : bool
         Also run the full Hungarian assignment for the best candidate (``result.match``).
+    refine : bool, optional
+        Refit each calibration to every spot its best candidate explains and score again
+        (default: only for calibrations fitted here; a given ``calibration`` is used as is).
     n_calibrations : int
         Without ``calibration``: the largest number of distinct, nearly equally good
         calibration hypotheses (:func:`~surfgeo.measure.calibrate.calibration_candidates`)
@@ -574,6 +605,8 @@ def index_pattern(
         raise InputError(
             f"the probability that a spot is seen must lie between 0 and 1, got {seen_probability!r}."
         )
+    if refine is None:
+        refine = calibration is None
     if calibration is not None:
         cals = [calibration]
     else:
@@ -582,24 +615,26 @@ def index_pattern(
     if sigma_px is None:
         rms = [c.rms_px for c in cals if math.isfinite(c.rms_px)]
         sigma_px = max(min(rms) / math.sqrt(2.0), MIN_SIGMA_PX) if rms else 1.0
-    best_run = None
-    for cal in cals:
+    # each calibration is scored, then refined with every spot its best candidate explains (a
+    # much longer lever arm than the integer spots alone)
+    refined = {}
+    steps = _progress(range(len(cals)), total=len(cals), desc="indexing", enabled=show_progress)
+    for i in steps:
         run = _score_all(
-            P,
-            cal,
-            lattice,
-            energy_eV,
-            table,
-            gate_px,
-            sigma_px,
-            seen_probability,
-            expected_strays,
-            show_progress and len(cals) == 1,
+            P, cals[i], lattice, energy_eV, table, gate_px, sigma_px, seen_probability, expected_strays
         )
-        # the first calibration is the one the integer spots (and the pattern's inversion
-        # symmetry) prefer; another replaces it only when the whole pattern says so clearly
-        if best_run is None or run.scores.min() < best_run.scores.min() - CALIBRATION_SWITCH:
-            best_run = run
+        # a refit needs spots to rest on: skip calibrations whose best candidate explains few
+        if refine and run.matched[int(np.argmin(run.scores))] >= max(6, REFINE_FRACTION * len(P)):
+            run = _refined(
+                run, P, lattice, energy_eV, table, gate_px, sigma_px, seen_probability, expected_strays
+            )
+        refined[i] = run
+    # the first calibration is the one the integer spots (and the pattern's inversion
+    # symmetry) prefer; another replaces it only when the whole pattern says so clearly
+    best_run = refined[0]
+    for i, r in refined.items():
+        if i != 0 and r.scores.min() < best_run.scores.min() - CALIBRATION_SWITCH:
+            best_run = r
     run = best_run
     if not sigma_given:
         # re-estimate sigma from the best candidate's matched spots (many more than the integer
@@ -610,16 +645,7 @@ def index_pattern(
             s_new = max(math.sqrt(float(np.median(r * r)) / (2 * math.log(2.0))), MIN_SIGMA_PX)
             if abs(s_new / run.ctx.sigma - 1.0) > 0.1:
                 run = _score_all(
-                    P,
-                    run.cal,
-                    lattice,
-                    energy_eV,
-                    table,
-                    gate_px,
-                    s_new,
-                    seen_probability,
-                    expected_strays,
-                    False,
+                    P, run.cal, lattice, energy_eV, table, gate_px, s_new, seen_probability, expected_strays
                 )
     calibration, ctx, grids, best = run.cal, run.ctx, run.grids, run.best
     scores, matched, absent, visible, rms = run.scores, run.matched, run.absent, run.visible, run.rms
@@ -697,37 +723,73 @@ class _Run:
     w_a: float
 
 
-def _score_all(P, cal, lattice, energy, table, gate_px, sigma_px, q, strays, show_progress) -> _Run:
+def _score_all(P, cal, lattice, energy, table, gate_px, sigma_px, q, strays) -> _Run:
     """Score every candidate of ``table`` under one calibration (module docstring)."""
     ctx = _context(P, cal, lattice, energy, gate_px, sigma_px)
     w_u, w_a = _weights(ctx, q, strays)
     resid = _hnf_residuals(ctx, table)
-    grids: dict[int, _Grid] = {}
-    n_orb = len(table.orbits)
-    best = np.full((n_orb, len(P)), np.inf)
-    np.minimum.at(best, table.hnf_orbit, resid)
-    scores = np.empty(n_orb)
-    matched = np.empty(n_orb, dtype=np.int64)
-    absent = np.empty(n_orb, dtype=np.int64)
-    visible = np.empty(n_orb, dtype=np.int64)
-    rms = np.empty(n_orb)
-    s2 = ctx.sigma**2
-    for o in _progress(range(n_orb), total=n_orb, desc="scoring superlattices", enabled=show_progress):
-        orb = table.orbits[o]
-        g = grids.get(orb.area)
-        if g is None:
-            g = grids[orb.area] = _grid(ctx, orb.area)
-        r = best[o]
-        m = r <= ctx.gate
-        nm = int(m.sum())
-        V = int(g.counts[orb.residues].sum())
-        matched[o] = nm
-        visible[o] = V
-        absent[o] = max(V - nm, 0)
-        pos = float(np.sum(np.minimum(r[m], ctx.gate) ** 2) / (2 * s2))
-        scores[o] = pos + w_u * (len(P) - nm) + w_a * absent[o] + math.log(orb.area)
-        rms[o] = float(np.sqrt(np.mean(r[m] ** 2))) if nm else math.nan
+    areas = sorted({orb.area for orb in table.orbits})
+    grids = _grids(ctx, areas)
+    # members of an orbit are stored one after the other
+    best = np.minimum.reduceat(resid, table.orbit_start, axis=0)
+    m = best <= ctx.gate
+    matched = m.sum(axis=1).astype(np.int64)
+    visible = np.array(
+        [int(grids[orb.area].counts[orb.residues].sum()) for orb in table.orbits], dtype=np.int64
+    )
+    absent = np.maximum(visible - matched, 0)
+    r2 = np.where(m, np.minimum(best, ctx.gate) ** 2, 0.0)
+    pos = r2.sum(axis=1) / (2 * ctx.sigma**2)
+    area = np.array([orb.area for orb in table.orbits], dtype=float)
+    scores = pos + w_u * (len(P) - matched) + w_a * absent + np.log(area)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        rms = np.sqrt(r2.sum(axis=1) / matched)
+    rms[matched == 0] = math.nan
     return _Run(cal, ctx, grids, best, scores, matched, absent, visible, rms, w_u, w_a)
+
+
+def _matched_labels(run: _Run, table: _Table, o: int) -> tuple[np.ndarray, np.ndarray]:
+    """Spots matched by candidate ``o`` and the labels (floats) of the beams they match."""
+    ctx = run.ctx
+    idx = np.flatnonzero(run.best[o] <= ctx.gate)
+    members = np.flatnonzero(table.hnf_orbit == o)
+    best_d = np.full(len(idx), np.inf)
+    labels = np.zeros((len(idx), 2))
+    offs = np.array([(i, j) for i in (-1.0, 0.0, 1.0) for j in (-1.0, 0.0, 1.0)])
+    h = ctx.h[idx]
+    J = ctx.J[idx]
+    for k in members:
+        R, Ri = table.basis[k], table.basis_inv[k]
+        v = np.rint(h @ Ri)
+        for off in offs:
+            lab = (v + off) @ R
+            px = np.einsum("nij,nj->ni", J, h - lab)
+            d = np.hypot(px[:, 0], px[:, 1])
+            better = d < best_d
+            best_d[better] = d[better]
+            labels[better] = lab[better]
+    return idx, labels
+
+
+def _refined(run: _Run, P, lattice, energy, table, gate_px, sigma_px, q, strays, rounds: int = 3) -> _Run:
+    """The run again after refitting its calibration to all spots of its best candidate,
+    repeated while the best score drops (each round matches more spots farther out)."""
+    from surfgeo.measure.calibrate import refine_calibration
+
+    for _ in range(rounds):
+        o = int(np.argmin(run.scores))
+        idx, labels = _matched_labels(run, table, o)
+        if len(idx) < 6:
+            return run
+        try:
+            cal = refine_calibration(run.cal, P[idx], labels @ lattice.reciprocal, energy)
+        except InputError:  # pragma: no cover - defensive
+            return run
+        new = _score_all(P, cal, lattice, energy, table, gate_px, sigma_px, q, strays)
+        if not new.scores.min() < run.scores.min() - 1.0:
+            return new if new.scores.min() < run.scores.min() else run
+        run = new
+    return run
 
 
 def _check_area(max_area) -> int:

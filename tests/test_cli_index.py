@@ -1,0 +1,412 @@
+"""The calibrate, match and index commands, called in-process: results, JSON, figures, and bad
+input (one sentence, exit 2, no traceback, no partial output).
+
+The spot lists and images are synthetic, made by surfgeo's own forward model."""
+
+import json
+
+import numpy as np
+import pytest
+
+from surfgeo.cli.main import main
+from surfgeo.io import write_bytes
+from surfgeo.io.spots import write_spot_csv
+from surfgeo.lattice import Lattice2D
+from surfgeo.measure.images import encode_image
+from surfgeo.measure.spotlist import MomentumSpotList
+from surfgeo.measure.synthetic import positions_coincide, synthetic_measurement
+
+
+@pytest.fixture(scope="module")
+def sqrt3(tmp_path_factory):
+    """A synthetic (sqrt3 x sqrt3)R30 pattern on a hexagonal substrate, as CSV and PNG."""
+    d = tmp_path_factory.mktemp("sqrt3")
+    m = synthetic_measurement(3, lattice=Lattice2D.hexagonal(2.77), matrix=[[2, 1], [-1, 1]], energy=120.0)
+    write_spot_csv(d / "spots.csv", m.spots)
+    write_bytes(d / "pattern.png", encode_image(m.render().image, "png", "uint16"))
+    return d, m
+
+
+def run(args, capsys):
+    code = main([str(a) for a in args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def bad(args, capsys, *outputs):
+    code, out, err = run(args, capsys)
+    assert code == 2, err
+    assert "Traceback" not in err and err.count("\n") == 1 and err.strip().endswith(".")
+    for o in outputs:
+        assert not o.exists()
+    return err
+
+
+def test_index_spot_list_json(sqrt3, capsys, tmp_path):
+    d, m = sqrt3
+    out = tmp_path / "index.json"
+    code, text, err = run(
+        [
+            "index",
+            d / "spots.csv",
+            "--lattice",
+            "hex:2.77",
+            "--energy",
+            "120",
+            "--screen",
+            m.screen_spec(),
+            "--json",
+            out,
+        ],
+        capsys,
+    )
+    assert code == 0, err
+    assert "(√3×√3)R30°" in text or "(sqrt3xsqrt3)R30" in text
+    data = json.loads(out.read_text())
+    cal = data["calibration"]
+    for key in ("centre_px", "rotation_deg", "mirror", "scale_px_per_rad"):
+        assert key in cal
+    assert (
+        abs(cal["centre_px"][0] - m.screen.centre_x) < 1.0
+        and abs(cal["centre_px"][1] - m.screen.centre_y) < 1.0
+    )
+    best = data["candidates"][0]
+    for key in (
+        "matrix",
+        "wood",
+        "domains",
+        "score",
+        "matched",
+        "unexplained",
+        "absent",
+        "rms_px",
+        "predicted_px",
+        "indistinguishable_from",
+    ):
+        assert key in best
+    assert best["wood"] == "(√3×√3)R30°" and best["matrix"] == [[2, 1], [-1, 1]] and best["domains"] == 1
+    assert positions_coincide(np.array(best["predicted_px"]), m.truth_px, m.screen)
+    scores = [c["score"] for c in data["candidates"]]
+    assert scores == sorted(scores)
+
+
+def test_index_json_to_stdout_and_plot(sqrt3, capsys, tmp_path):
+    d, m = sqrt3
+    plot = tmp_path / "overlay.svg"
+    code, text, err = run(
+        [
+            "index",
+            d / "spots.csv",
+            "--lattice",
+            "hex:2.77",
+            "--energy",
+            "120",
+            "--screen",
+            m.screen_spec(),
+            "--json",
+            "-",
+            "--plot",
+            plot,
+            "--top",
+            "3",
+        ],
+        capsys,
+    )
+    assert code == 0, err
+    data = json.loads(text)
+    assert len(data["candidates"]) >= 3
+    assert plot.read_text().lstrip().startswith(("<?xml", "<svg"))
+
+
+def test_index_image(sqrt3, capsys, tmp_path):
+    d, m = sqrt3
+    plot = tmp_path / "overlay.png"
+    code, text, err = run(
+        [
+            "index",
+            d / "pattern.png",
+            "--lattice",
+            "hex:2.77",
+            "--energy",
+            "120",
+            "--json",
+            "-",
+            "--plot",
+            plot,
+            "--contrast",
+            "1",
+            "99.5",
+            "8",
+        ],
+        capsys,
+    )
+    assert code == 0, err
+    best = json.loads(text)["candidates"][0]
+    assert best["wood"] == "(√3×√3)R30°"
+    assert positions_coincide(np.array(best["predicted_px"]), m.truth_px, m.screen)
+    assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_calibrate_then_reuse(sqrt3, capsys, tmp_path):
+    d, m = sqrt3
+    cal = tmp_path / "screen.json"
+    fig = tmp_path / "cal.png"
+    code, text, err = run(
+        [
+            "calibrate",
+            d / "spots.csv",
+            "--lattice",
+            "hex:2.77",
+            "--energy",
+            "120",
+            "--screen",
+            m.screen_spec(),
+            "--json",
+            cal,
+            "--plot",
+            fig,
+        ],
+        capsys,
+    )
+    assert code == 0, err
+    assert "integer-order spots" in text and fig.exists()
+    saved = json.loads(cal.read_text())
+    assert saved["kind"] == "surfgeo screen calibration" and "screen" in saved
+    code, text, err = run(
+        [
+            "index",
+            d / "spots.csv",
+            "--lattice",
+            "hex:2.77",
+            "--energy",
+            "120",
+            "--calibration",
+            cal,
+            "--json",
+            "-",
+        ],
+        capsys,
+    )
+    assert code == 0, err
+    data = json.loads(text)
+    assert data["calibration"]["centre_px"] == saved["centre_px"]
+    code, text, err = run(
+        [
+            "match",
+            d / "spots.csv",
+            "--lattice",
+            "hex:2.77",
+            "--energy",
+            "120",
+            "--wood",
+            "(sqrt3 x sqrt3)R30",
+            "--calibration",
+            cal,
+            "--json",
+            "-",
+        ],
+        capsys,
+    )
+    assert code == 0, err
+    res = json.loads(text)
+    assert res["unexplained_count"] == int((m.origin < 0).sum())
+    assert res["matched_count"] == len(m.spots) - int((m.origin < 0).sum())
+    assert len(res["matched"][0]["residual_inv_angstrom"]) == 2
+
+
+def test_calibrate_several_energies(capsys, tmp_path):
+    lat = Lattice2D.square(2.55)
+    files, energies = [], [90.0, 150.0, 210.0]
+    base = synthetic_measurement(7, lattice=lat, matrix=[[1, 1], [-1, 1]], energy=90.0)
+    for e in energies:
+        m = synthetic_measurement(7, lattice=lat, matrix=[[1, 1], [-1, 1]], energy=e)
+        f = tmp_path / f"e{int(e)}.csv"
+        write_spot_csv(f, m.spots)
+        files.append(f)
+    # the same random screen for each energy: the generator draws it first from the same stream
+    code, text, err = run(
+        [
+            "calibrate",
+            *files,
+            "--lattice",
+            "square:2.55",
+            "--energy",
+            *energies,
+            "--screen",
+            base.screen_spec(),
+            "--json",
+            "-",
+        ],
+        capsys,
+    )
+    assert code == 0, err
+    data = json.loads(text)
+    assert data["energy_offset_fitted"] and abs(data["energy_offset_eV"]) < 3.0
+    assert abs(data["centre_px"][0] - base.screen.centre_x) < 1.0
+
+
+def test_match_model_file(capsys, tmp_path):
+    from surfgeo.diffraction.electron import wavenumber
+    from surfgeo.measure.calibrate import fast_pixels, on_screen
+    from surfgeo.slab.info import surface_info
+    from surfgeo.slab.model import build_model
+
+    atoms = build_model("structures/ni100_c_p4g.toml")
+    lat = surface_info(atoms).lattice
+    m = synthetic_measurement(
+        4, lattice=lat, matrix=[[2, 0], [0, 2]], energy=120.0, missing_fraction=0.0, strays=(0, 0)
+    )
+    from surfgeo.diffraction.pattern import slab_pattern
+
+    pat = slab_pattern(atoms, 120.0)
+    px = fast_pixels(m.screen, pat.k_parallel, 120.0)
+    keep = on_screen(m.screen, px, pat.k_parallel, wavenumber(120.0)) & ~pat.extinct
+    f = tmp_path / "p4g.csv"
+    f.write_text("x,y\n" + "".join(f"{x:.4f},{y:.4f}\n" for x, y in px[keep]))
+    spec = "vectors:" + ",".join(f"{v:.12g}" for v in lat.vectors.ravel())
+    code, text, err = run(
+        [
+            "match",
+            f,
+            "--lattice",
+            spec,
+            "--energy",
+            "120",
+            "--model",
+            "structures/ni100_c_p4g.toml",
+            "--screen",
+            m.screen_spec(),
+            "--json",
+            "-",
+        ],
+        capsys,
+    )
+    assert code == 0, err
+    res = json.loads(text)
+    assert res["unexplained_count"] == 0
+    assert res["absent"] and all(a["verdict"] == "extinct" for a in res["absent"])
+
+
+def test_momentum_spot_list(capsys, tmp_path):
+    from surfgeo.diffraction.pattern import superstructure_pattern
+
+    lat = Lattice2D.square(2.55)
+    pat = superstructure_pattern(lat, [[1, 1], [-1, 1]], 100.0, theta_max=55.0)
+    k = pat.k_parallel[np.any(pat.k_parallel != 0, axis=1)]
+    f = tmp_path / "momenta.csv"
+    from surfgeo.io.spots import write_spot_csv as w
+
+    w(f, MomentumSpotList.from_columns(k[:, 0], k[:, 1]))
+    code, text, err = run(["index", f, "--lattice", "square:2.55", "--energy", "100", "--json", "-"], capsys)
+    assert code == 0, err
+    assert json.loads(text)["candidates"][0]["wood"] in ("c(2×2)", "(√2×√2)R45°")
+    err = bad(["calibrate", f, "--lattice", "square:2.55", "--energy", "100"], capsys)
+    assert "needs no calibration" in err
+
+
+# --------------------------------------------------------------------------- bad input
+def test_unreadable_and_empty_images(capsys, tmp_path):
+    out = tmp_path / "out.json"
+    junk = tmp_path / "junk.png"
+    junk.write_bytes(b"this is not an image at all")
+    err = bad(["index", junk, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys)
+    assert "junk.png" in err
+    empty = tmp_path / "empty.tif"
+    empty.write_bytes(b"")
+    err = bad(["index", empty, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys)
+    assert "empty" in err
+    missing = tmp_path / "none.png"
+    bad(["calibrate", missing, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys, out)
+
+
+def test_bad_csv_files(capsys, tmp_path):
+    out = tmp_path / "out.json"
+    cols = tmp_path / "cols.csv"
+    cols.write_text("a,b\n1,2\n")
+    err = bad(["index", cols, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys, out)
+    assert "x,y" in err
+    text = tmp_path / "text.csv"
+    text.write_text("x,y\n10,20\n30,abc\n")
+    err = bad(["index", text, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys, out)
+    assert "line 3" in err and "not a number" in err
+    short = tmp_path / "short.csv"
+    short.write_text("x,y\n10\n")
+    err = bad(
+        ["match", short, "--lattice", "hex:2.77", "--energy", "100", "--wood", "(2x2)", "--json", out],
+        capsys,
+        out,
+    )
+    assert "missing" in err
+
+
+def test_energy_too_low(sqrt3, capsys, tmp_path):
+    d, m = sqrt3
+    out = tmp_path / "out.json"
+    err = bad(
+        [
+            "index",
+            d / "spots.csv",
+            "--lattice",
+            "hex:2.77",
+            "--energy",
+            "5",
+            "--screen",
+            m.screen_spec(),
+            "--json",
+            out,
+        ],
+        capsys,
+        out,
+    )
+    assert "no integer-order beam" in err and "appear above" in err
+    err = bad(
+        ["index", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "-3", "--json", out], capsys, out
+    )
+    assert "--energy" in err
+
+
+def test_too_few_spots(capsys, tmp_path):
+    out = tmp_path / "out.json"
+    f = tmp_path / "two.csv"
+    f.write_text("x,y\n100,120\n300,320\n")
+    err = bad(["calibrate", f, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys, out)
+    assert "at least 3 measured spots" in err
+    empty = tmp_path / "none.csv"
+    empty.write_text("x,y\n")
+    err = bad(["index", empty, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys, out)
+    assert "got 0" in err
+
+
+def test_spots_outside_the_stated_image(capsys, tmp_path):
+    f = tmp_path / "big.csv"
+    f.write_text("x,y\n100,120\n900,320\n50,50\n")
+    err = bad(["index", f, "--lattice", "hex:2.77", "--energy", "100"], capsys)
+    assert "size=WxH" in err
+
+
+def test_outputs_are_not_overwritten(sqrt3, capsys, tmp_path):
+    d, m = sqrt3
+    out = tmp_path / "exists.json"
+    out.write_text("keep")
+    err = bad(["index", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120", "--json", out], capsys)
+    assert "--force" in err and out.read_text() == "keep"
+    err = bad(
+        ["index", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120", "--plot", tmp_path / "x.jpg"],
+        capsys,
+    )
+    assert ".png or .svg" in err
+
+
+def test_bad_options(sqrt3, capsys, tmp_path):
+    d, m = sqrt3
+    base = ["index", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120"]
+    assert "--max-area" in bad([*base, "--max-area", "0"], capsys)
+    assert "--contrast" in bad([*base, "--contrast", "50", "10"], capsys)
+    assert "--gate" in bad([*base, "--gate", "-1"], capsys)
+    assert "lattice" in bad(["index", d / "spots.csv", "--lattice", "hexx:2.77", "--energy", "120"], capsys)
+    err = bad(["match", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120"], capsys)
+    assert "Wood notation" in err
+    err = bad(
+        ["calibrate", d / "spots.csv", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120"], capsys
+    )
+    assert "one --energy per input" in err
