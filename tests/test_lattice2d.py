@@ -113,3 +113,28 @@ def test_reduction_and_classification_are_basis_independent(spec, u):
     assert red.area == pytest.approx(lat.area)
     assert sorted(red.lengths) == pytest.approx(sorted(lat.reduced()[0].lengths))
     assert len(other.point_group()) == len(lat.point_group())
+
+
+def test_gauss_reduce_stops_at_a_half_integer_projection(monkeypatch):
+    # Regression: with a2 . a1 / |a1|^2 = +-1/2 up to rounding (here the fcc(997) plane lattice),
+    # rounding the projection swapped a2 between two equally reduced vectors until the 200-step
+    # limit. Counting the rounding steps shows the loop now stops as soon as |projection| <= 1/2.
+    import builtins
+
+    from surfgeo.lattice import lattice2d
+
+    calls = []
+
+    def counting_round(x, *args):
+        calls.append(x)
+        return builtins.round(x, *args)
+
+    monkeypatch.setattr(lattice2d, "round", counting_round, raising=False)
+    B = np.array([[22.347438331943106, -1.1906139220636482e-16], [-1.2033236024892442, 2.497040710059071]])
+    red, T = lattice2d.gauss_reduce(B)
+    assert len(calls) <= 3
+    # Common practice, no source: Lagrange-Gauss conditions and a unimodular change of basis
+    (x1, y1), (x2, y2) = red
+    n1 = x1 * x1 + y1 * y1
+    assert n1 <= x2 * x2 + y2 * y2 and abs(x1 * x2 + y1 * y2) <= 0.5 * n1 * (1 + 1e-9)
+    assert abs(round(np.linalg.det(T))) == 1 and np.allclose(T @ B, red)

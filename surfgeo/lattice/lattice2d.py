@@ -128,9 +128,12 @@ def gauss_reduce(B) -> tuple[np.ndarray, np.ndarray]:
             x1, y1, x2, y2 = x2, y2, x1, y1
             t = [t[1], t[0]]
             n1 = n2
-        mu = round((x1 * x2 + y1 * y2) / n1)
-        if mu == 0:
+        r = (x1 * x2 + y1 * y2) / n1
+        # |r| <= 1/2 is reduced; at r = +-1/2 (up to rounding) both a2 and a2 -+ a1 are, and
+        # rounding r would swap between them forever (a 200-step spin, e.g. on fcc(997))
+        if abs(r) <= 0.5 + 1e-10:
             break
+        mu = round(r)
         x2, y2 = x2 - mu * x1, y2 - mu * y1
         t[1] = [t[1][0] - mu * t[0][0], t[1][1] - mu * t[0][1]]
     return np.array([[x1, y1], [x2, y2]]), np.array(t, dtype=np.int64)
