@@ -272,3 +272,18 @@ def test_one_hundred_synthetic_cases():
             failures.append(f"{i}: {m.lattice.kind()} {m.matrix.tolist()} at {m.energy:.0f} eV")
     print(f"indexing: {good}/100 synthetic cases predict the true spot positions; misses: {failures}")
     assert good >= 95
+
+
+def test_fast_visibility_agrees_with_the_screen():
+    m = synthetic_measurement(13, holder=True)
+    cal = Calibration(screen=m.screen, rms_px=1.0)
+    ctx = IX._context(m.spots.positions, cal, m.lattice, m.energy, None, None)
+    rng = np.random.default_rng(0)
+    kmax = ctx.k * math.sin(math.radians(m.screen.acceptance_deg))
+    kp = rng.uniform(-kmax, kmax, (4000, 2))
+    kp = kp[np.hypot(kp[:, 0], kp[:, 1]) <= kmax]
+    px = IX._label_pixels(ctx, kp)
+    assert np.allclose(px, m.screen.to_pixels(kp, m.energy))
+    vis, clear = IX._visible_and_clear(m.screen, px, 2.0)
+    assert np.array_equal(vis, on_screen(m.screen, px, kp, ctx.k))
+    assert np.array_equal(clear, on_screen(m.screen, px, kp, ctx.k, margin=2.0))

@@ -707,6 +707,8 @@ def _same(h1: Hypothesis, h2: Hypothesis, w: np.ndarray | None = None) -> bool:
     lattice symmetry changes A but not the predicted set)."""
     if np.linalg.norm(h1.centre - h2.centre) > 3.0:
         return False
+    if abs(h1.scale / h2.scale - 1.0) > 0.02:
+        return False
     if w is None:
         return np.linalg.norm(h1.A - h2.A) < 0.01 * np.linalg.norm(h1.A)
     p1 = _predict(h1.centre, h1.A, w)

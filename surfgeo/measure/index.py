@@ -482,6 +482,42 @@ def _grid(ctx: _Context, n: int) -> _Grid:
     return _grids(ctx, [n])[n]
 
 
+_GRID_CACHE: dict = {}
+
+
+def _grid_labels(lattice: Lattice2D, areas: tuple, kmax: float):
+    """Numerators, parallel momenta, residue codes (offset per area) and area bounds of every
+    label ``(i / n, j / n)`` inside the disc ``|k_par| <= kmax``; independent of the screen
+    (cached: the calibrations tried for one pattern share it)."""
+    key = (lattice.vectors.tobytes(), areas, round(kmax, 12))
+    hit = _GRID_CACHE.get(key)
+    if hit is not None:
+        return hit
+    la = np.linalg.norm(lattice.vectors, axis=1)
+    H = kmax * la / (2 * math.pi)
+    nums, bounds, offsets = [], [0], [0]
+    for n in areas:
+        r1 = np.arange(-math.ceil(H[0] * n), math.ceil(H[0] * n) + 1)
+        r2 = np.arange(-math.ceil(H[1] * n), math.ceil(H[1] * n) + 1)
+        I, Jg = np.meshgrid(r1, r2, indexing="ij")
+        block = np.stack([I.ravel(), Jg.ravel()], axis=1)
+        kb = (block / n) @ lattice.reciprocal
+        block = block[np.einsum("ij,ij->i", kb, kb) <= kmax * kmax]
+        nums.append(block)
+        bounds.append(bounds[-1] + len(block))
+        offsets.append(offsets[-1] + n * n)
+    num = np.concatenate(nums)
+    den = np.repeat(np.asarray(areas, dtype=np.int64), np.diff(bounds))
+    kp = (num / den[:, None]) @ lattice.reciprocal
+    code = (num[:, 0] % den) * den + (num[:, 1] % den)
+    gcode = code + np.repeat(np.asarray(offsets[:-1], dtype=np.int64), np.diff(bounds))
+    out = (num, kp, code, gcode, np.asarray(bounds), np.asarray(offsets))
+    if len(_GRID_CACHE) > 8:
+        _GRID_CACHE.clear()
+    _GRID_CACHE[key] = out
+    return out
+
+
 def _grids(ctx: _Context, areas) -> dict:
     """Visible fractional grid points for every denominator in ``areas``, in one pass.
 
@@ -489,35 +525,60 @@ def _grids(ctx: _Context, areas) -> dict:
     it are kept with their residue code ``(i mod n) n + (j mod n)``, and ``counts`` holds the
     number of clearly visible ones (``EDGE_MARGIN_PX`` from an edge) per residue.
     """
-    lat = ctx.lattice
+    areas = tuple(int(a) for a in areas)
     kmax = ctx.k * math.sin(math.radians(ctx.screen.acceptance_deg))
-    la = np.linalg.norm(lat.vectors, axis=1)
-    H = kmax * la / (2 * math.pi)
-    nums, bounds = [], [0]
-    for n in areas:
-        r1 = np.arange(-math.ceil(H[0] * n), math.ceil(H[0] * n) + 1)
-        r2 = np.arange(-math.ceil(H[1] * n), math.ceil(H[1] * n) + 1)
-        I, Jg = np.meshgrid(r1, r2, indexing="ij")
-        block = np.stack([I.ravel(), Jg.ravel()], axis=1)
-        kb = (block / n) @ lat.reciprocal
-        block = block[np.einsum("ij,ij->i", kb, kb) <= kmax * kmax]
-        nums.append(block)
-        bounds.append(bounds[-1] + len(block))
-    num = np.concatenate(nums)
-    den = np.repeat(np.asarray(areas, dtype=float), np.diff(bounds))
-    kp = (num / den[:, None]) @ lat.reciprocal
-    from surfgeo.measure.calibrate import pixels_from_normalised
-
-    px = pixels_from_normalised(ctx.screen, normalised_points(ctx.screen, kp, ctx.k))
-    vis = on_screen(ctx.screen, px, kp, ctx.k)
-    clear = on_screen(ctx.screen, px, kp, ctx.k, margin=EDGE_MARGIN_PX)
+    num, kp, code, gcode, bounds, offsets = _grid_labels(ctx.lattice, areas, kmax)
+    px = _label_pixels(ctx, kp)
+    vis, clear = _visible_and_clear(ctx.screen, px, EDGE_MARGIN_PX)
+    counts = np.bincount(gcode[clear], minlength=int(offsets[-1]))
     out = {}
-    for n, a, b in zip(areas, bounds[:-1], bounds[1:], strict=True):
+    for i, n in enumerate(areas):
+        a, b = int(bounds[i]), int(bounds[i + 1])
         sel = np.flatnonzero(vis[a:b]) + a
-        nm, pn, cl = num[sel], px[sel], clear[sel]
-        code = (nm[:, 0] % n) * n + (nm[:, 1] % n)
-        out[n] = _Grid(nm, code, pn, cl, np.bincount(code[cl], minlength=n * n))
+        out[n] = _Grid(num[sel], code[sel], px[sel], clear[sel], counts[offsets[i] : offsets[i + 1]])
     return out
+
+
+def _label_pixels(ctx: _Context, kp: np.ndarray) -> np.ndarray:
+    """Pixels of beams inside the acceptance (all of them are, here); the far-screen law is
+    linear in k_par (rho(theta) = sin(theta) = |k_par| / k), which saves the trigonometry."""
+    from surfgeo.measure.calibrate import linear_part, pixels_from_normalised
+    from surfgeo.screen import FarScreen
+
+    scr = ctx.screen
+    if type(scr) is FarScreen:
+        L = scr.scale / ctx.k * linear_part(scr)
+        out = np.empty_like(kp)
+        out[:, 0] = scr.centre_x + kp @ L[0]
+        out[:, 1] = scr.centre_y - kp @ L[1]
+        return out
+    return pixels_from_normalised(scr, normalised_points(scr, kp, ctx.k))
+
+
+def _visible_and_clear(
+    screen: ScreenGeometry, px: np.ndarray, margin: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """On the image and outside the gun's shadow (beams already inside the acceptance), and
+    the same ``margin`` px clear of the image edges and the shadow."""
+    x, y = px[:, 0], px[:, 1]
+    w, h = screen.width, screen.height
+    vis = np.isfinite(x) & (x >= -0.5) & (x <= w - 0.5) & (y >= -0.5) & (y <= h - 0.5)
+    clear = (
+        vis & (x >= margin - 0.5) & (x <= w - 0.5 - margin) & (y >= margin - 0.5) & (y <= h - 0.5 - margin)
+    )
+    r0 = screen.shadow_radius
+    if r0 > 0:
+        dx, dy = x - screen.centre_x, -(y - screen.centre_y)
+        rr = dx * dx + dy * dy
+        vis &= rr >= r0 * r0
+        clear &= rr >= (r0 + margin) ** 2
+        if screen.holder_deg is not None:
+            t = math.radians(screen.holder_deg)
+            along = dx * math.cos(t) + dy * math.sin(t)
+            across = np.abs(-dx * math.sin(t) + dy * math.cos(t))
+            vis &= ~((along > 0) & (across < r0))
+            clear &= ~((along > 0) & (across < r0 + margin))
+    return vis, clear
 
 
 def _weights(ctx: _Context, q: float, strays: float) -> tuple[float, float]:
@@ -771,7 +832,7 @@ def _matched_labels(run: _Run, table: _Table, o: int) -> tuple[np.ndarray, np.nd
     return idx, labels
 
 
-def _refined(run: _Run, P, lattice, energy, table, gate_px, sigma_px, q, strays, rounds: int = 3) -> _Run:
+def _refined(run: _Run, P, lattice, energy, table, gate_px, sigma_px, q, strays, rounds: int = 2) -> _Run:
     """The run again after refitting its calibration to all spots of its best candidate,
     repeated while the best score drops (each round matches more spots farther out)."""
     from surfgeo.measure.calibrate import refine_calibration
@@ -847,13 +908,37 @@ def _nice_matrix(lattice: Lattice2D, orb: _Orbit) -> tuple[np.ndarray, list, str
     return min(mats, key=key), mats, None
 
 
+class _LazyLabels(list):
+    """Exact labels made from integer numerators only when first looked at."""
+
+    def __init__(self, num: np.ndarray, den: int):
+        super().__init__()
+        self._num, self._den, self._made = num, den, False
+
+    def _make(self):
+        if not self._made:
+            self._made = True
+            d = self._den
+            super().extend((Fraction(int(i), d), Fraction(int(j), d)) for i, j in self._num)
+
+    def __len__(self):
+        return len(self._num)
+
+    def __iter__(self):
+        self._make()
+        return super().__iter__()
+
+    def __getitem__(self, i):
+        self._make()
+        return super().__getitem__(i)
+
+
 def _labels_of(table: _Table, grids: dict, o: int) -> tuple[np.ndarray, np.ndarray, list]:
     orb = table.orbits[o]
     g = grids[orb.area]
     sel = np.isin(g.code, orb.residues)
     num = g.num[sel]
-    labels = [(Fraction(int(i), orb.area), Fraction(int(j), orb.area)) for i, j in num]
-    return g.px[sel], num, labels
+    return g.px[sel], num, _LazyLabels(num, orb.area)
 
 
 def _make_candidate(ctx, table, grids, o, scores, matched, absent, rms, n_spots) -> IndexCandidate:
