@@ -16,28 +16,37 @@ Method
    ``p = c + F S w`` with ``c`` the centre, ``F = diag(1, -1)`` (y down) and ``S`` the 2x2
    linear part ``scale (1 + stretch n n^T) R(rotation) Mirror`` (see
    :mod:`surfgeo.screen.geometry`). Without ellipticity this is a similarity in ``w``.
-2. **Hypotheses (RANSAC over pairs).** Two correspondences fix a similarity: for every
-   ordered pair of measured spots (i, j) and every pair of short integer beams (a, b) -- a
-   from the shortest shells, one representative per orbit of the lattice's rotation group, b
-   from the three shortest shells -- and both mirror choices (one is enough when the lattice
-   has a mirror line, as relabelling by that mirror turns one into the other), the similarity
-   mapping beam a to spot i and beam b to spot j is computed in closed form (complex
-   arithmetic). Pairs whose distance does not fit the scale window are skipped. The (00)
-   spot is never needed, so the gun may hide it. Each hypothesis is scored first on the two
-   shortest shells, the best few hundred on every integer beam: measured spots within a
-   tolerance of a predicted integer spot count as inliers, predicted integer spots inside the
-   image with no measured spot near them as misses. Integer-order spots are the strongest of
-   a pattern, so misses cost ``MISS_WEIGHT`` inliers each; this is what rejects a denser
-   lattice of fractional-order spots posing as the substrate.
-3. **Local optimisation (LO-RANSAC).** The best hypotheses are refined by alternating a
-   nearest-neighbour match with a linear least-squares affine fit ``p = c + A w`` (which
-   absorbs the ellipticity), with a shrinking gate [Chum, Matas and Kittler 2003].
-4. **Robust least squares.** The screen parameters are then fitted to the matched
+2. **Centres from inversion symmetry.** At normal incidence the beams come in pairs g, -g,
+   so the spots are symmetric through the screen axis whatever the rotation, mirror,
+   ellipticity or radial law. Every pair of spots votes for its midpoint; the strongest vote
+   peaks are the candidate centres (:func:`centre_candidates`). The (00) spot is never
+   needed, so the gun may hide it.
+3. **Hypotheses (RANSAC with one point per centre).** With the centre fixed, one
+   correspondence fixes a similarity: every measured spot is tried as a short integer beam
+   (one representative per orbit of the lattice's rotation group, from the two shortest
+   shells), for both mirror choices (one is enough when the lattice has a mirror line, as
+   relabelling by that mirror turns one into the other), keeping scales inside the window.
+   Each hypothesis is scored first on the two shortest shells (a soft count that prefers
+   close matches), the best few hundred on every integer beam: measured spots within a
+   tolerance of a predicted integer spot count as inliers; predicted integer spots inside
+   the image with no measured spot cost ``MISS_WEIGHT`` inliers each (integer-order spots
+   are the strongest of a pattern, which rejects a denser lattice of fractional-order spots
+   posing as the substrate); measured spots beyond the acceptance rim cost
+   ``OUTSIDE_WEIGHT``; inversion partners found (minus those missing) add
+   ``SYMMETRY_WEIGHT`` each; a weak prior prefers scales near the nominal one.
+4. **Local optimisation (LO-RANSAC).** The best hypotheses are refined by alternating a
+   nearest-neighbour match with a linear least-squares fit ``p = c + A w`` -- a similarity,
+   or an affine map (which absorbs the ellipticity) once at least ``MIN_AFFINE_SPOTS`` spots
+   match and the ellipticity stays below ``MAX_STRETCH`` -- with a shrinking gate
+   [Chum, Matas and Kittler 2003]. When only the first shell of integer spots is on the
+   screen among dense fractional spots, several hypotheses can be nearly equally good:
+   :func:`calibration_candidates` returns all within a margin, for indexing to choose.
+5. **Robust least squares.** The screen parameters are then fitted to the matched
    integer-order spots with :func:`scipy.optimize.least_squares` and a soft-L1 loss (robust
    against the odd wrong match), re-matching once after the fit. The ellipticity is
    parametrised smoothly as ``scale' (I + E)`` with ``E`` symmetric and traceless.
    Uncertainties come from the Jacobian at the solution, ``cov = s^2 (J^T J)^-1``.
-5. **Several energies.** Images of the same screen at several energies share every screen
+6. **Several energies.** Images of the same screen at several energies share every screen
    parameter; the scale and an energy offset ``dE`` (``E_true = E_nominal + dE``, e.g. the
    contact potential between cathode and sample) are fitted jointly, which a single energy
    cannot do (for the far-screen model only ``scale / k`` is measurable). The labels found in
@@ -53,6 +62,8 @@ References
    Science 2781, 236 (2003).
 .. [3] S. Umeyama, IEEE Trans. Pattern Anal. Mach. Intell. 13, 376 (1991) (similarity from
    point correspondences).
+.. [4] R. O. Duda and P. E. Hart, "Use of the Hough transformation to detect lines and curves
+   in pictures", Commun. ACM 15, 11 (1972) (voting in an accumulator, used for the centre).
 """
 
 from __future__ import annotations

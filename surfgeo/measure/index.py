@@ -40,6 +40,15 @@ A negative log-likelihood with a parsimony prior, in natural-log units:
 
 ``relative_probability`` is ``exp(-score)`` normalised over the candidates listed.
 
+Calibration
+-----------
+Without a given calibration, every nearly equally good calibration hypothesis
+(:func:`surfgeo.measure.calibrate.calibration_candidates`) is scored; each is then refitted
+to all spots its best candidate explains (:func:`surfgeo.measure.calibrate.refine_calibration`:
+a far longer lever arm than the integer spots alone) and scored again. The one the integer
+spots prefer is kept unless another's best candidate scores lower by more than
+``CALIBRATION_SWITCH`` (10, a likelihood ratio of e^10). A given calibration is used as it is.
+
 Incommensurate overlayers
 -------------------------
 When the best commensurate candidate leaves fractional-order spots unexplained
