@@ -190,3 +190,33 @@ def test_screen_spec_strings(tmp_path):
     (tmp_path / "odd.json").write_text(json.dumps({"model": "flat", "zoom": 2}))
     with pytest.raises(InputError, match="unknown screen field"):
         parse_screen(str(tmp_path / "odd.json"))
+
+
+def _surfgeo_imports(path):
+    """Every ``surfgeo...`` module a source file imports (top level and inside functions)."""
+    import ast
+
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    out = set()
+    for node in ast.walk(tree):
+        if isinstance(node, ast.ImportFrom) and node.module and node.module.startswith("surfgeo"):
+            out.add(node.module)
+        elif isinstance(node, ast.Import):
+            out.update(a.name for a in node.names if a.name.startswith("surfgeo"))
+    return out
+
+
+def test_screen_and_diffraction_imports_have_no_cycle():
+    # Common practice, no source (DEVELOPERS.md layers): screen may use diffraction.electron, a module of
+    # the same layer, but nothing in diffraction may import screen, so there is no cycle
+    from pathlib import Path
+
+    import surfgeo
+
+    root = Path(surfgeo.__file__).parent
+    for path in sorted((root / "diffraction").glob("*.py")):
+        assert not any(m.startswith("surfgeo.screen") for m in _surfgeo_imports(path)), path.name
+    used = set().union(*(_surfgeo_imports(p) for p in (root / "screen").glob("*.py")))
+    assert {m for m in used if m.startswith("surfgeo.diffraction")} == {"surfgeo.diffraction.electron"}
+    # electron.py itself needs nothing of surfgeo but the errors
+    assert _surfgeo_imports(root / "diffraction" / "electron.py") <= {"surfgeo.errors"}

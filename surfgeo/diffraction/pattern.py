@@ -58,6 +58,7 @@ from surfgeo.diffraction.electron import (
     to_gun_frame,
     wavenumber,
 )
+from surfgeo.diffraction.kinematic import QUALITATIVE_NOTE
 from surfgeo.errors import InputError, StructureError
 from surfgeo.lattice import Lattice2D, basis_note
 
@@ -68,12 +69,6 @@ SOURCES = ("substrate", "superstructure", "overlayer", "double")
 EXTINCTION_RTOL = 1e-10
 
 POSITIONS_NOTE = "Beam positions are exact (kinematic conservation of parallel momentum)."
-QUALITATIVE_NOTE = (
-    "Kinematic intensities are qualitative for LEED (multiple scattering is strong); beam "
-    "positions and symmetry extinctions at normal incidence are exact. A kinematic extinction "
-    "at off-normal incidence is not a prediction: multiple scattering lifts it once the plane "
-    "of incidence leaves the glide line."
-)
 
 
 # =============================================================================== domains
