@@ -375,3 +375,18 @@ def test_superstructure_object_and_wood_input():
     # Common practice, no source: the (sqrt3 x sqrt3)R30 spots at (1/3, 1/3) in the 120 degree basis
     # (the matrix [[2, 1], [-1, 1]] is from sources.md)
     assert (F(1, 3), F(1, 3)) in _labels(p)
+
+
+def test_integer_flags_are_computed_once_per_label_list():
+    # a regression: output loops index pattern.integer[i] / pattern.order[i] per beam, and both were
+    # rebuilt from the Fractions on every access (16000 beams took over a minute to print)
+    p = superstructure_pattern(HEX, [[2, 0], [0, 1]], 400.0)
+    flags = p.integer
+    assert p.integer is flags and not flags.flags.writeable
+    assert p.order is p.order
+    # Common practice, no source: a label is integer order exactly when both indices are integers
+    assert flags.tolist() == [h.denominator == 1 and k.denominator == 1 for h, k in p.hk]
+    assert list(p.order) == ["integer" if f else "fractional" for f in flags]
+    # a new label list is seen
+    p.hk = [(F(1, 2), F(0))] + list(p.hk[1:])
+    assert not p.integer[0] and p.order[0] == "fractional"

@@ -147,8 +147,10 @@ def label_numerators(mn, matrix_frac) -> tuple[np.ndarray, int]:
 
 def format_index(x) -> str:
     """A beam index as a string: ``"1/2"``, ``"-1"``, ``"0"``; floats (incommensurate) as ``"0.4226"``."""
-    if isinstance(x, (Fraction, int, np.integer)):
-        return str(Fraction(x))
+    if isinstance(x, Fraction):
+        return str(x)
+    if isinstance(x, (int, np.integer)):
+        return str(int(x))
     return f"{float(x):.4f}"
 
 

@@ -325,6 +325,8 @@ class Pattern:
     theta_max: float = 90.0
     notes: list = field(default_factory=list)
     description: dict = field(default_factory=dict)
+    # integer-order flags, computed once per label list (output loops index them per beam)
+    _integer_cache: tuple | None = field(default=None, init=False, repr=False, compare=False)
 
     def __len__(self) -> int:
         return len(self.hk)
@@ -336,15 +338,27 @@ class Pattern:
 
     @property
     def integer(self) -> np.ndarray:
-        """True for integer-order beams (exactly, for exact labels)."""
-        if self.exact:
-            return np.array([h.denominator == 1 and k.denominator == 1 for h, k in self.hk], dtype=bool)
-        return np.array([s == "substrate" for s in self.source], dtype=bool)
+        """True for integer-order beams (exactly, for exact labels); a read-only array.
+
+        Computed once for the current label list, so that loops over the beams that index it
+        (``pattern.integer[i]``) stay linear in the number of beams.
+        """
+        key = (id(self.hk), len(self.hk), id(self.source))
+        if self._integer_cache is None or self._integer_cache[0] != key:
+            if self.exact:
+                flags = np.array([h.denominator == 1 and k.denominator == 1 for h, k in self.hk], dtype=bool)
+            else:
+                flags = np.array([s == "substrate" for s in self.source], dtype=bool)
+            flags.flags.writeable = False
+            order = tuple("integer" if i else "fractional" for i in flags)
+            self._integer_cache = (key, flags, order)
+        return self._integer_cache[1]
 
     @property
-    def order(self) -> list[str]:
-        """``"integer"`` or ``"fractional"`` per beam."""
-        return ["integer" if i else "fractional" for i in self.integer]
+    def order(self) -> tuple[str, ...]:
+        """``"integer"`` or ``"fractional"`` per beam (computed once, like :attr:`integer`)."""
+        self.integer  # noqa: B018 - fills the cache
+        return self._integer_cache[2]
 
     @property
     def extinct(self) -> np.ndarray | None:
@@ -386,27 +400,34 @@ class Pattern:
         if screen is not None:
             px, vis = self.screen_positions(screen)
         ext = self.extinct
+        # plain Python lists first: indexing numpy arrays element by element is slow
+        kp, theta, phi, order = self.k_parallel.tolist(), self.theta.tolist(), self.phi.tolist(), self.order
+        inten = None if self.intensity is None else self.intensity.tolist()
+        ext = None if ext is None else ext.tolist()
+        terr = None if self.terrace_hk is None else self.terrace_hk.tolist()
+        if px is not None:
+            px, vis = px.tolist(), vis.tolist()
         beams = []
         for i, (h, k) in enumerate(self.hk):
             b = {
                 "hk": [format_index(h), format_index(k)],
-                "k_parallel": [float(self.k_parallel[i, 0]), float(self.k_parallel[i, 1])],
-                "theta_deg": float(self.theta[i]),
-                "phi_deg": float(self.phi[i]),
-                "order": "integer" if self.integer[i] else "fractional",
+                "k_parallel": kp[i],
+                "theta_deg": theta[i],
+                "phi_deg": phi[i],
+                "order": order[i],
                 "domains": list(self.domains[i]),
-                "intensity": None if self.intensity is None else float(self.intensity[i]),
+                "intensity": None if inten is None else inten[i],
                 "source": self.source[i],
             }
             if ext is not None:
-                b["extinct"] = bool(ext[i])
+                b["extinct"] = ext[i]
             if self.via[i] is not None:
                 b["via"] = self.via[i]
-            if self.terrace_hk is not None:
-                b["terrace_hk"] = [float(self.terrace_hk[i, 0]), float(self.terrace_hk[i, 1])]
+            if terr is not None:
+                b["terrace_hk"] = terr[i]
             if px is not None:
-                b["screen_xy"] = [float(px[i, 0]), float(px[i, 1])]
-                b["on_screen"] = bool(vis[i])
+                b["screen_xy"] = px[i]
+                b["on_screen"] = vis[i]
             beams.append(b)
         out = {
             "energy_eV": float(self.energy),
