@@ -174,6 +174,7 @@ def test_screen_from_a_calibration_file(capsys, tmp_path):
     [
         (["--lattice", "hex:2.77", "--energy", "abc"], "energy"),
         (["--lattice", "hex:2.77", "--energy", "40:30:1"], "STOP"),
+        (["--lattice", "hex:2.77", "--energy", "30000"], "at most 2000 eV"),
         (["--lattice", "hex:2.77", "--energy", "80", "--incidence", "95,0"], "polar angle"),
         (["--lattice", "hex:2.77", "--energy", "80", "--incidence", "10"], "THETA,PHI"),
         (["--energy", "80"], "--lattice"),

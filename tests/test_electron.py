@@ -12,6 +12,8 @@ from scipy import constants
 
 from surfgeo.diffraction.electron import (
     HBAR2_2M,
+    MAX_ENERGY_EV,
+    check_pattern_energies,
     emergence_energy,
     exit_angles,
     exit_directions,
@@ -40,6 +42,20 @@ def test_wavenumber_and_hbar2_2m_constants():
         assert wavenumber(e) == pytest.approx(0.51232 * math.sqrt(e), rel=2e-5)
     e = np.array([10.0, 50.0, 300.0])
     assert np.allclose(wavenumber(e) * wavelength(e), 2 * math.pi)
+
+
+def test_energy_limit_keeps_the_relativistic_error_below_a_thousandth():
+    # Source: relativistic de Broglie wavelength lambda = h / sqrt(2 m E (1 + E / (2 m c^2))) (e.g.
+    # L. Reimer, Transmission Electron Microscopy, Springer), constants from scipy.constants (CODATA)
+    mc2 = constants.m_e * constants.c**2 / constants.e  # eV
+    for e in (100.0, 1000.0, MAX_ENERGY_EV):
+        rel = constants.h / math.sqrt(2 * constants.m_e * e * constants.e * (1 + e / (2 * mc2))) * 1e10
+        assert 0 < wavelength(e) / rel - 1 < 1e-3
+    # just above the limit the pattern functions refuse, in one sentence naming the limit
+    assert check_pattern_energies([40.0, MAX_ENERGY_EV]).tolist() == [40.0, MAX_ENERGY_EV]
+    with pytest.raises(InputError, match="at most 2000 eV") as exc:
+        check_pattern_energies(3e4, "--energy")
+    assert str(exc.value).startswith("--energy") and str(exc.value).count(". ") == 0
 
 
 @pytest.mark.parametrize("bad", [0.0, -5.0, float("nan"), float("inf")])

@@ -87,6 +87,7 @@ def test_theta_max_and_no_domains():
         (dict(matrix=[[2, 0], [0, 1]], weights=[1, 2]), "3 domain"),
         (dict(matrix=[[2, 0], [0, 1]], weights=[0, 0, 0]), "not all zero"),
         (dict(energy=-3.0), "energy"),
+        (dict(energy=2500.0), "at most 2000 eV"),
         (dict(theta_max=95.0), "theta_max"),
         (dict(double_order=-1), "order"),
         (dict(incidence=(90, 0)), "incidence"),
@@ -292,7 +293,7 @@ def test_parse_energies():
     assert np.allclose(parse_energies("40:44:2"), [40, 42, 44])
     assert np.allclose(parse_energies("100"), [100])
     assert np.allclose(parse_energies("50, 80"), [50, 80])
-    for bad in ("a", "40:30:2", "40:50:0", "-5", "1:2", "1:1000000:0.001"):
+    for bad in ("a", "40:30:2", "40:50:0", "-5", "1:2", "1:1000000:0.001", "30000", "100:3000:10", "nan"):
         with pytest.raises(InputError):
             parse_energies(bad)
 

@@ -99,7 +99,8 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         "--energy",
         required=True,
         metavar="E",
-        help="beam energy in eV: one value, a list E1,E2,... or a range START:STOP:STEP (a sweep)",
+        help="beam energy in eV (at most 2000): one value, a list E1,E2,... or a range START:STOP:STEP "
+        "(a sweep)",
     )
     p.add_argument(
         "--incidence",

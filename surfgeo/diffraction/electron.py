@@ -30,6 +30,36 @@ from scipy import constants as _c
 #: hbar^2 / (2 m_e) in eV Angstrom^2 (about 3.80998), from CODATA via scipy.constants.
 HBAR2_2M: float = _c.hbar**2 / (2.0 * _c.m_e) / _c.e * 1e20
 
+#: Highest beam energy (eV) the pattern functions accept. The wavenumber here is the
+#: non-relativistic one; the true wavelength is shorter by the factor 1 / sqrt(1 + E / (2 m c^2)),
+#: i.e. by about E / (4 m c^2) = 0.1 % at 2 keV (1.5 % at 30 keV). Above LEED energies the
+#: number of beams (proportional to E) also grows beyond what a spot map can show.
+MAX_ENERGY_EV: float = 2000.0
+
+
+def check_pattern_energies(energy, what: str = "the energy") -> np.ndarray:
+    """Validate beam energies for patterns: finite, positive and at most :data:`MAX_ENERGY_EV`.
+
+    Returns the energies as a float array (same shape); raises :class:`~surfgeo.errors.InputError`
+    with one sentence naming ``what`` otherwise.
+    """
+    from surfgeo.errors import InputError
+
+    try:
+        e = np.asarray(energy, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} must be a positive number of eV, got {energy!r}.") from None
+    if e.size == 0 or np.any(~np.isfinite(e)) or np.any(e <= 0):
+        bad = e[~(np.isfinite(e) & (e > 0))] if e.size else e
+        got = f"{float(bad.ravel()[0]):g}" if bad.size else "nothing"
+        raise InputError(f"{what} must be a positive number of eV, got {got}.")
+    if np.any(e > MAX_ENERGY_EV):
+        raise InputError(
+            f"{what} must be at most {MAX_ENERGY_EV:g} eV (LEED energies; the electron kinematics here "
+            f"are non-relativistic), got {float(e.max()):g} eV."
+        )
+    return e
+
 
 def _energy_array(energy) -> np.ndarray:
     e = np.asarray(energy, dtype=float)

@@ -507,13 +507,11 @@ def _check_theta_max(theta_max) -> float:
 
 
 def _check_energy(energy) -> float:
-    try:
-        e = float(energy)
-    except (TypeError, ValueError):
-        raise InputError(f"the energy must be a positive number of eV, got {energy!r}.") from None
-    if not math.isfinite(e) or e <= 0:
-        raise InputError(f"the energy must be a positive number of eV, got {energy!r}.")
-    return e
+    from surfgeo.diffraction.electron import check_pattern_energies
+
+    if isinstance(energy, (list, tuple, np.ndarray)) and np.size(energy) != 1:
+        raise InputError(f"the energy must be one positive number of eV, got {energy!r}.")
+    return float(check_pattern_energies(energy).ravel()[0])
 
 
 def superstructure_pattern(

@@ -13,7 +13,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from surfgeo.diffraction.beams import format_index, terrace_indices
-from surfgeo.diffraction.electron import exit_angles, incident_k_parallel, onset_energy
+from surfgeo.diffraction.electron import (
+    check_pattern_energies,
+    exit_angles,
+    incident_k_parallel,
+    onset_energy,
+)
 from surfgeo.diffraction.pattern import (
     Pattern,
     _check_theta_max,
@@ -55,9 +60,7 @@ def parse_energies(text: str) -> np.ndarray:
         raise InputError(
             f"energy {text!r} must be a number of eV, a list E1,E2,... or a range START:STOP:STEP."
         ) from None
-    if e.size == 0 or np.any(~np.isfinite(e)) or np.any(e <= 0):
-        raise InputError(f"energies in {text!r} must be positive numbers of eV.")
-    return e
+    return check_pattern_energies(e, f"energy {text!r}")
 
 
 @dataclass
@@ -199,9 +202,7 @@ def pattern_sweep(
     """
     from surfgeo.progress import progress
 
-    e = np.sort(np.asarray(energies, dtype=float).ravel())
-    if e.size == 0 or np.any(~np.isfinite(e)) or np.any(e <= 0):
-        raise InputError("energies must be positive numbers of eV.")
+    e = np.sort(check_pattern_energies(np.ravel(energies), "the energies"))
     theta_max = _check_theta_max(theta_max)
     emax = float(e[-1])
     if atoms is not None:
