@@ -179,6 +179,7 @@ def test_screen_from_a_calibration_file(capsys, tmp_path):
         (["--lattice", "hex:2.77", "--energy", "80", "--incidence", "10"], "THETA,PHI"),
         (["--energy", "80"], "--lattice"),
         (["--lattice", "hex:2.77", "--energy", "80", "--screen", "dome"], "screen model"),
+        (["--lattice", "hex:2.77", "--energy", "80", "--screen", "sphere:accept=0"], "acceptance"),
         (["--lattice", "hex:2.77", "--energy", "80", "--animate", "OUT.gif"], "energy range"),
         (["--lattice", "hex:2.77", "--energy", "80", "--plot", "OUT.jpg"], ".png or .svg"),
         (

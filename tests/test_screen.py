@@ -164,7 +164,10 @@ def test_params_vector_and_json_round_trip(tmp_path):
         ("flat:dist=3", "camera model only"),
         ("camera:dist=0.5", "camera_distance"),
         ("sphere:scale=-4", "scale must be positive"),
-        ("sphere:accept=95", "acceptance_deg"),
+        ("sphere:accept=95", "acceptance"),
+        ("sphere:accept=0", "acceptance half-angle"),  # was a ZeroDivisionError
+        ("sphere:accept=-5", "acceptance half-angle"),  # was blamed on the scale
+        ("camera:dist=3,accept=80", "70.5288"),
         ("sphere:stretch", "KEY=VALUE"),
         ("missing.json", "does not exist"),
     ],

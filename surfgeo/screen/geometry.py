@@ -473,7 +473,16 @@ def default_screen(
     cls = MODELS[model]
     # any valid acceptance will do to evaluate the radial law
     probe = cls(acceptance_deg=1.0, **{k: v for k, v in kwargs.items() if k == "camera_distance"})
-    rho = float(probe.radial(np.array(math.radians(acceptance_deg))))
+    try:
+        accept = float(acceptance_deg)
+    except (TypeError, ValueError):
+        accept = math.nan
+    if not (0.0 < accept <= probe.max_theta_deg):
+        raise InputError(
+            f"the screen's acceptance half-angle must be in (0, {probe.max_theta_deg:.6g}] degrees for the "
+            f"{model} model, got {acceptance_deg!r}."
+        )
+    rho = float(probe.radial(np.array(math.radians(accept))))
     centre = (size - 1) / 2.0
     return cls(
         **{
