@@ -329,7 +329,7 @@ def run(args: argparse.Namespace) -> int:
     from surfgeo.cli._common import resolve_lattice
     from surfgeo.errors import InputError
     from surfgeo.io import dump_json
-    from surfgeo.measure.calibrate import SCALE_TOLERANCE, calibrate_series
+    from surfgeo.measure.calibrate import SCALE_TOLERANCE, calibrate_series, calibration_candidates
 
     check_outputs(args, "json", "plot")
     contrast_kwargs(args)
@@ -349,14 +349,27 @@ def run(args: argparse.Namespace) -> int:
                 f"{m.source} lists momenta (kx, ky); a momentum-space list needs no calibration."
             )
     screen = meas[0].screen
-    cal = calibrate_series([m.positions for m in meas], lattice, energies, screen, scale_tolerance=tol)
+    notes = []
+    if len(meas) == 1:
+        cands = calibration_candidates(meas[0].positions, lattice, energies[0], screen, scale_tolerance=tol)
+        cal = cands[0]
+        if len(cands) > 1:
+            notes.append(
+                f"{len(cands) - 1} other calibration(s) fit the integer-order spots nearly as well "
+                "(typical when only the first shell of integer spots is on the screen); 'surfgeo index' "
+                "chooses among them with all the spots."
+            )
+    else:
+        cal = calibrate_series([m.positions for m in meas], lattice, energies, screen, scale_tolerance=tol)
     record = cal.to_dict()
     record["inputs"] = [m.source for m in meas]
+    record["notes"] = notes
     if args.json != "-":
         lines = [f"input        {', '.join(m.source for m in meas)}"]
         lines += calibration_lines(cal, lattice, energies)
         for m in meas:
             lines += [f"note         {n}" for n in m.notes]
+        lines += [f"note         {n}" for n in notes]
         write_report(lines)
     if args.json:
         dump_json(record, args.json, force=args.force)

@@ -67,7 +67,7 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         type=float,
         default=None,
         metavar="PX",
-        help="largest distance of a matched spot, px (default: 3.5 sigma from the calibration)",
+        help="largest distance of a matched spot, px (default: 3.5 times the RMS position error)",
     )
     add_output_options(p, plot=True)
     add_contrast_option(p)

@@ -53,7 +53,7 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         type=float,
         default=None,
         metavar="PX",
-        help="largest distance of a matched spot, px (default: 3.5 sigma from the calibration)",
+        help="largest distance of a matched spot, px (default: 3.5 times the RMS position error)",
     )
     p.add_argument(
         "--no-domains", action="store_true", help="the candidate as given, without its symmetry domains"

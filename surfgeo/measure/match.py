@@ -154,9 +154,7 @@ def predict_spots(
                 raise InputError("a substrate lattice is needed to predict the spots of a matrix.")
             lat, M = lattice, candidate
         pat = superstructure_pattern(lat, M, E, domains=domains)
-        desc = (
-            "substrate" if M is None else f"superstructure {Superstructure(lat, M) if M is not None else ''}"
-        )
+        desc = "substrate (1×1)" if M is None else f"superstructure {Superstructure(lat, M)}"
     px = fast_pixels(cal.screen, pat.k_parallel, E)
     vis = on_screen(cal.screen, px, pat.k_parallel, wavenumber(E))
     return PredictedSpots(
