@@ -391,3 +391,24 @@ def test_integer_flags_are_computed_once_per_label_list():
     # a new label list is seen
     p.hk = [(F(1, 2), F(0))] + list(p.hk[1:])
     assert not p.integer[0] and p.order[0] == "fractional"
+
+
+def test_extinction_is_judged_against_the_specular_beam_when_it_is_not_listed():
+    # a regression: with only one beam on the screen, that beam was its own scale and a glide
+    # extinction (1e-27 of the specular beam) was printed as an intensity
+    from pathlib import Path
+
+    from surfgeo.slab.model import build_model
+
+    slab = build_model(Path(__file__).resolve().parents[1] / "structures" / "ni100_c_p4g.toml")
+    narrow = slab_pattern(slab, 5.0, (40.0, 0.0), theta_max=20.0)
+    assert [tuple(str(x) for x in hk) for hk in narrow.hk] == [("-1/2", "0")]
+    full = slab_pattern(slab, 5.0, (40.0, 0.0))
+    i00 = full.intensity[full.index_of(0, 0)]
+    assert narrow.intensity_scale == pytest.approx(i00, rel=1e-12)
+    assert full.intensity_scale == pytest.approx(i00, rel=1e-12)
+    # Source: International Tables for Crystallography Vol. A, plane group p4g: h0 with h odd absent
+    # in the (2x2) cell; in the kinematic sum also off normal incidence (kinematic.QUALITATIVE_NOTE)
+    assert narrow.extinct.tolist() == [True]
+    assert full.extinct[full.index_of("-1/2", 0)] and not full.extinct[full.index_of(0, 0)]
+    assert narrow.intensity[0] <= 1e-20 * i00

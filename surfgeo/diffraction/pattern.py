@@ -65,7 +65,9 @@ from surfgeo.lattice import Lattice2D, basis_note
 #: Kinds of beam sources, simplest first (a beam produced in several ways keeps the first).
 SOURCES = ("substrate", "superstructure", "overlayer", "double")
 
-#: Intensities below this fraction of the strongest beam count as extinct (numerical zero).
+#: Intensities below this fraction of the reference intensity count as extinct (numerical
+#: zero); the reference is the strongest beam listed or the specular (00) beam at the same
+#: energy, whichever is larger (see :attr:`Pattern.extinct`).
 EXTINCTION_RTOL = 1e-10
 
 POSITIONS_NOTE = "Beam positions are exact (kinematic conservation of parallel momentum)."
@@ -299,6 +301,9 @@ class Pattern:
         Weighted incoherent sum of the domain intensities (kinematic), None without atoms.
     domain_intensity : ndarray or None, shape (n, ndomains)
         Intensity of each domain (0 where a domain does not produce the beam).
+    intensity_scale : float or None
+        Intensity of the specular (00) beam at this energy (computed even when the beam is
+        not listed); with the strongest listed beam it sets the scale of :attr:`extinct`.
     terrace_hk : ndarray or None, shape (n, 2)
         Beam indices relative to the terrace lattice of a stepped face (energy dependent).
     theta_max : float
@@ -325,6 +330,7 @@ class Pattern:
     theta_max: float = 90.0
     notes: list = field(default_factory=list)
     description: dict = field(default_factory=dict)
+    intensity_scale: float | None = None
     # integer-order flags, computed once per label list (output loops index them per beam)
     _integer_cache: tuple | None = field(default=None, init=False, repr=False, compare=False)
 
@@ -362,11 +368,15 @@ class Pattern:
 
     @property
     def extinct(self) -> np.ndarray | None:
-        """True for beams whose kinematic intensity vanishes (below EXTINCTION_RTOL of the strongest)."""
+        """True for beams whose kinematic intensity vanishes.
+
+        Vanishing means at most :data:`EXTINCTION_RTOL` times the larger of the strongest
+        listed beam and :attr:`intensity_scale` (the specular beam), so that a beam is not
+        called present just because every stronger beam fell outside the screen.
+        """
         if self.intensity is None:
             return None
-        top = np.nanmax(self.intensity) if len(self.intensity) else 0.0
-        return self.intensity <= EXTINCTION_RTOL * top
+        return self.intensity <= EXTINCTION_RTOL * _reference_intensity(self.intensity, self.intensity_scale)
 
     @property
     def incidence_xy(self) -> tuple[float, float]:
@@ -851,6 +861,14 @@ def slab_pattern(
     return pat
 
 
+def _reference_intensity(intensity, scale=None):
+    """The scale of extinctions: the strongest finite intensity (last axis) or ``scale`` if larger."""
+    a = np.asarray(intensity, dtype=float)
+    finite = np.where(np.isfinite(a), a, 0.0)
+    top = finite.max(axis=-1, keepdims=a.ndim > 1, initial=0.0) if a.ndim else finite
+    return top if scale is None else np.maximum(top, float(scale))
+
+
 def _add_intensities(pat: Pattern, atoms, reps, **kinematic) -> None:
     nd = len(pat.domain_records)
     member = np.zeros((len(pat), nd), dtype=bool)
@@ -864,6 +882,16 @@ def _add_intensities(pat: Pattern, atoms, reps, **kinematic) -> None:
     w = np.array([r.weight for r in pat.domain_records])
     pat.domain_intensity = dom_int
     pat.intensity = dom_int @ w
+    # the specular beam sets the scale of extinctions; in-plane operations leave it unchanged
+    # (q_parallel = 0), so one structural domain is enough when it is not listed
+    spec = np.flatnonzero(np.all(pat.g == 0.0, axis=1))
+    if spec.size:
+        pat.intensity_scale = float(pat.intensity[spec[0]])
+    else:
+        first = next((ops[:1] for ops in reps if ops), [])
+        i00 = domain_intensities(atoms, [np.zeros((1, 2))], [pat.energy], pat.incidence_xy, [first],
+                                 **kinematic)[0]
+        pat.intensity_scale = float(i00[0, 0]) if i00.size and np.isfinite(i00[0, 0]) else None
 
 
 # =============================================================================== relaxed versus ideal
@@ -985,19 +1013,22 @@ def _equal_groups(order, *curves, rtol: float = 1e-7) -> list[list[int]]:
     return [sorted(g) for g in groups]
 
 
-def intensity_ratio(relaxed, ideal) -> np.ndarray:
+def intensity_ratio(relaxed, ideal, scale_relaxed=None, scale_ideal=None) -> np.ndarray:
     """``I_relaxed / I_ideal`` of beams (last axis), e.g. of shape (Nb,) or (NE, Nb).
 
     A beam is extinct in a structure when its intensity is at most :data:`EXTINCTION_RTOL`
-    of that structure's strongest beam (in the same row). The ratio is ``inf`` where the beam
-    is extinct only in the ideal structure (it appears), ``0`` where only in the relaxed one,
-    and NaN where it is extinct in both or does not emerge (NaN intensity).
+    of that structure's strongest beam (in the same row), or of its ``scale_*`` (the specular
+    intensity, :attr:`Pattern.intensity_scale`) when that is larger. The ratio is ``inf`` where
+    the beam is extinct only in the ideal structure (it appears), ``0`` where only in the
+    relaxed one, and NaN where it is extinct in both or does not emerge (NaN intensity).
     """
     r = np.asarray(relaxed, dtype=float)
     i = np.asarray(ideal, dtype=float)
     ok = np.isfinite(r) & np.isfinite(i)
-    top_r = np.where(np.isfinite(r), r, -np.inf).max(axis=-1, keepdims=True) if r.size else r
-    top_i = np.where(np.isfinite(i), i, -np.inf).max(axis=-1, keepdims=True) if i.size else i
+    top_r = _reference_intensity(r[None] if r.ndim == 1 else r, scale_relaxed)
+    top_i = _reference_intensity(i[None] if i.ndim == 1 else i, scale_ideal)
+    if r.ndim == 1:
+        top_r, top_i = top_r[0], top_i[0]
     with np.errstate(invalid="ignore", divide="ignore"):
         er = r <= EXTINCTION_RTOL * top_r
         ei = i <= EXTINCTION_RTOL * top_i
@@ -1044,7 +1075,8 @@ class PatternComparison:
     def ratio(self) -> np.ndarray:
         """``I_relaxed / I_ideal`` per beam: inf where the beam appears, 0 where it vanishes, NaN
         where it is extinct in both (see :func:`intensity_ratio`)."""
-        return intensity_ratio(self.relaxed.intensity, self.ideal.intensity)
+        return intensity_ratio(self.relaxed.intensity, self.ideal.intensity, self.relaxed.intensity_scale,
+                               self.ideal.intensity_scale)
 
     @property
     def relative_change(self) -> np.ndarray:
