@@ -251,3 +251,19 @@ def test_help_documents_the_reference_comparison(capsys):
                 "correlation", "peak_eV_relaxed", "peak_eV_ideal", "strongest", "intensity_reference"):
         assert key in out, key
     assert "qualitative for LEED" in out
+
+
+def test_hidden_beams_say_why(capsys):
+    # a regression: beams beyond the screen (here behind it, at 89 degrees incidence) were marked
+    # "(shadow)", and "--theta-max 90" was reported as "within 90 deg of the screen axis"
+    status, out, err = _run(capsys, "pattern", "--lattice", "hex:2.77", "--energy", "50",
+                            "--incidence", "89,0", "--theta-max", "90")
+    assert status == 0, err
+    assert "emerge from the surface" in out and "within 90 deg" not in out
+    spec = next(line for line in out.splitlines() if line.split()[:2] == ["0", "0"])
+    assert spec.endswith("(off screen)")  # Common practice, no source: the specular beam leaves at 2 x 89 deg
+    status, out, err = _run(capsys, "pattern", "--lattice", "hex:2.77", "--energy", "150", "--screen",
+                            "sphere:shadow=30,holder=0")
+    assert status == 0, err
+    spec = next(line for line in out.splitlines() if line.split()[:2] == ["0", "0"])
+    assert spec.endswith("(shadow)") and "(off screen)" not in out

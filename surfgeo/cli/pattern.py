@@ -235,7 +235,7 @@ def _check_outputs(args) -> None:
 def _fmt(x, width: int, prec: int = 2) -> str:
     if x is None or (isinstance(x, float) and not math.isfinite(x)):
         return "-".rjust(width)
-    return f"{x:{width}.{prec}f}"
+    return f"{round(float(x), prec) + 0.0:{width}.{prec}f}"  # + 0.0: no "-0.000"
 
 
 # ----------------------------------------------------------------------------- run
@@ -468,18 +468,31 @@ def _header(pattern_like, screen, energy_text: str) -> list[str]:
     return lines
 
 
+def _beams_line(pattern, vis) -> str:
+    shown = int(np.sum(vis)) if len(pattern) else 0
+    if pattern.theta_max >= 90.0:
+        return f"beams       {len(pattern)} emerge from the surface ({shown} on the screen)"
+    return f"beams       {len(pattern)} within {pattern.theta_max:g} deg of the screen axis ({shown} visible)"
+
+
+def _hidden_reasons(pattern, screen, px) -> list[str]:
+    """Why each beam is not visible: outside the screen's acceptance (or behind it), or in a shadow."""
+    ang = screen.angle_from_axis(pattern.k_parallel, pattern.energy, pattern.incidence_xy)
+    with np.errstate(invalid="ignore"):
+        off = ~(ang <= screen.acceptance_deg) | ~np.isfinite(px[:, 0])
+    return ["off screen" if o else "shadow" for o in off]
+
+
 def pattern_report(pattern, screen) -> str:
     """The text report of a single-energy pattern."""
     from surfgeo.diffraction.beams import format_index
 
     px, vis = pattern.screen_positions(screen)
+    hidden = _hidden_reasons(pattern, screen, px)
     nd = len(pattern.domain_records)
     ext = pattern.extinct
     lines = _header(pattern, screen, f"{pattern.energy:g} eV")
-    lines.append(
-        f"beams       {len(pattern)} within {pattern.theta_max:g} deg of the screen axis "
-        f"({int(np.sum(vis)) if len(pattern) else 0} visible)"
-    )
+    lines.append(_beams_line(pattern, vis))
     lines.append("")
     head = (
         f"{'h':>6} {'k':>6}  {'order':<10} {'source':<14} {'theta':>6} {'phi':>6} {'kx':>7} {'ky':>7} "
@@ -504,7 +517,7 @@ def pattern_report(pattern, screen) -> str:
         if pattern.terrace_hk is not None:
             row += f" {pattern.terrace_hk[i, 0]:8.3f},{pattern.terrace_hk[i, 1]:7.3f}"
         if not vis[i]:
-            row += "  (shadow)"
+            row += f"  ({hidden[i]})"
         lines.append(row)
     lines.append("")
     lines += [f"note: {n}" for n in pattern.notes]
@@ -673,14 +686,12 @@ def comparison_report(comp, screen, names=("relaxed", "ideal"), top: int = 8) ->
 
     rel, ideal = comp.relaxed, comp.ideal
     px, vis = rel.screen_positions(screen)
+    hidden = _hidden_reasons(rel, screen, px)
     nd = len(rel.domain_records)
     ratio = comp.ratio
     status = comp.status
     lines = _match_lines(comp.matching, names) + _header(rel, screen, f"{rel.energy:g} eV")
-    lines.append(
-        f"beams       {len(rel)} within {rel.theta_max:g} deg of the screen axis "
-        f"({int(np.sum(vis)) if len(rel) else 0} visible)"
-    )
+    lines.append(_beams_line(rel, vis))
     lines.append("")
     lines.append(
         f"{'h':>6} {'k':>6}  {'order':<10} {'theta':>6} {'phi':>6} {'domains':<8} {'I_relaxed':>10} "
@@ -700,7 +711,7 @@ def comparison_report(comp, screen, names=("relaxed", "ideal"), top: int = 8) ->
         if status[i]:
             row += f"  ({status[i]})"
         elif not vis[i]:
-            row += "  (shadow)"
+            row += f"  ({hidden[i]})"
         lines.append(row)
     lines.append("")
     groups = comp.change_groups(top)
