@@ -287,3 +287,30 @@ def test_fast_visibility_agrees_with_the_screen():
     vis, clear = IX._visible_and_clear(m.screen, px, 2.0)
     assert np.array_equal(vis, on_screen(m.screen, px, kp, ctx.k))
     assert np.array_equal(clear, on_screen(m.screen, px, kp, ctx.k, margin=2.0))
+
+
+def test_unseen_spots_on_glide_lines_are_pointed_out():
+    # Ni(100)-(2x2)p4g-C from the structure library: without the glide-extinct spots the
+    # pattern is indexed as p(2x2) and the note names the glide lines.
+    # Source: International Tables for Crystallography Vol. A, plane group p4g (h0: h = 2n,
+    # 0k: k = 2n); sources.md (Holland and Woodruff 1973, from memory)
+    from surfgeo.diffraction.pattern import slab_pattern
+    from surfgeo.slab.info import surface_info
+    from surfgeo.slab.model import build_model
+
+    atoms = build_model("structures/ni100_c_p4g.toml")
+    lat = surface_info(atoms).lattice
+    m = synthetic_measurement(4, lattice=lat, matrix=[[2, 0], [0, 2]], energy=120.0)
+    pat = slab_pattern(atoms, 120.0)
+    px = fast_pixels(m.screen, pat.k_parallel, 120.0)
+    keep = on_screen(m.screen, px, pat.k_parallel, wavenumber(120.0)) & ~pat.extinct
+    P = px[keep] + np.random.default_rng(1).normal(0, 0.7, (int(keep.sum()), 2))
+    res = IX.index_pattern(P, lat, 120.0, m.nominal_screen, top=3)
+    best = res.candidates[0]
+    assert best.wood == "(2×2)" and best.unexplained == 0 and best.absent >= 4
+    assert best.notes and "glide lines" in best.notes[0]
+    # spots missing at random (weak ones) give no such note
+    m2 = synthetic_measurement(6, lattice=lat, matrix=[[2, 0], [0, 2]], energy=120.0, missing_fraction=0.3)
+    res2 = IX.index_pattern(m2.spots, lat, 120.0, m2.nominal_screen, top=1)
+    assert res2.candidates[0].wood == "(2×2)" and res2.candidates[0].absent >= 4
+    assert not res2.candidates[0].notes

@@ -116,6 +116,8 @@ def report_lines(res, source: str) -> list[str]:
                 f"gamma = {q['gamma_deg']:.2f} ± {q['gamma_deg_error']:.2f}°, "
                 f"rotation = {q['rotation_deg']:.2f} ± {q['rotation_deg_error']:.2f}°"
             )
+        for note in c.notes:
+            lines.append(f"{'':>23}note: {note}")
         for d in c.indistinguishable_from:
             other = d["wood"] or str(d["matrix"])
             when = "at every energy" if d["same_at_every_energy"] else "on this screen at this energy"

@@ -274,6 +274,7 @@ class IndexCandidate:
     relative_probability: float = math.nan
     signature: bytes = b""
     orbit: int = -1
+    notes: list = field(default_factory=list)
 
     @property
     def domains(self) -> int:
@@ -306,6 +307,7 @@ class IndexCandidate:
         }
         if self.parameters:
             out["overlayer"] = self.parameters
+        out["notes"] = list(self.notes)
         return out
 
 
@@ -755,6 +757,11 @@ def index_pattern(
         )
 
     _group(ctx, table, grids, candidates, scores, matched, visible)
+    for c in candidates:
+        if c.kind == "commensurate":
+            note = _glide_note(run, table, c)
+            if note:
+                c.notes.append(note)
     s0 = min(c.score for c in candidates)
     wts = np.array([math.exp(-(c.score - s0)) for c in candidates])
     for c, wt in zip(candidates, wts / wts.sum(), strict=True):
@@ -1024,6 +1031,64 @@ def _group(ctx, table: _Table, grids: dict, candidates: list, scores, matched, v
             )
         out.sort(key=lambda d: d["score"])
         c.indistinguishable_from = out
+
+
+def _absent_labels(run: _Run, table: _Table, o: int) -> np.ndarray:
+    """Numerators (over the candidate's area) of its clearly visible predicted spots with no
+    measured spot within the gate."""
+    orb = table.orbits[o]
+    g = run.grids[orb.area]
+    sel = np.isin(g.code, orb.residues) & g.clear
+    if not sel.any():
+        return np.zeros((0, 2), dtype=np.int64)
+    d, _ = cKDTree(run.ctx.P).query(g.px[sel], k=1) if len(run.ctx.P) else (np.full(sel.sum(), np.inf), None)
+    return g.num[sel][d > run.ctx.gate]
+
+
+def _glide_note(run: _Run, table: _Table, c: IndexCandidate) -> str | None:
+    """A note when every unseen fractional-order spot of the candidate lies where glide lines
+    along the edges of a rectangular (or square) cell extinguish spots at normal incidence:
+    (h, 0) with odd h or (0, k) with odd k in the cell's basis.
+
+    References
+    ----------
+    International Tables for Crystallography Vol. A, reflection conditions of the plane groups
+    p2mg, p2gg, p4g; G. W. Holland and D. P. Woodruff, Surf. Sci. 36, 488 (1973).
+    """
+    orb = table.orbits[c.orbit]
+    n = orb.area
+    num = _absent_labels(run, table, c.orbit)
+    frac = num[np.any(num % n != 0, axis=1)]
+    if len(frac) < 2:
+        return None
+    A = run.ctx.lattice.vectors
+    cells = []
+    for a, b, d in orb.hnfs:
+        H = np.array([[a, b], [0, d]], dtype=np.int64)
+        red, T = Lattice2D(H @ A).reduced()
+        v1, v2 = red.vectors
+        if abs(v1 @ v2) <= 1e-6 * np.linalg.norm(v1) * np.linalg.norm(v2):
+            cells.append(T @ H)
+    if not cells:
+        return None
+    for lab in frac:
+        on_line = False
+        for M in cells:
+            v = lab @ M.T  # superlattice coordinates times n
+            if np.any(v % n):
+                continue
+            m1, m2 = v // n
+            if (m2 == 0 and m1 % 2) or (m1 == 0 and m2 % 2):
+                on_line = True
+                break
+        if not on_line:
+            return None
+    return (
+        f"all {len(frac)} fractional-order spots it predicts but were not seen lie where glide lines "
+        "along the edges of its rectangular cell extinguish spots at normal incidence ((h,0) and (0,k) "
+        "with odd h, k, as in the plane groups p2mg, p2gg and p4g); at off-normal incidence they would "
+        "appear"
+    )
 
 
 def _has_glide_cell(lattice: Lattice2D, M) -> bool:
