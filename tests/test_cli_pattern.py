@@ -205,6 +205,26 @@ def test_bad_input_one_sentence_exit_2(capsys, tmp_path, argv, words):
     assert not any(p.name.startswith("out") or p.name.startswith(".out") for p in tmp_path.iterdir())
 
 
+def test_structure_without_record_or_cell(capsys, tmp_path):
+    from ase import Atoms
+
+    bare = tmp_path / "bare.xyz"
+    ase.io.write(bare, Atoms("Cu2", positions=[[0, 0, 0], [1.2, 1.2, 1.5]]))
+    out_json = str(tmp_path / "o.json")
+    status, out, err = _run(capsys, "pattern", str(bare), "--energy", "100", "--json", out_json)
+    # a regression: a note and then an error about "surface_cell rows" that did not name the file
+    assert status == 2 and "Traceback" not in err
+    assert len(err.strip().splitlines()) == 1 and "bare.xyz" in err and "in-plane cell" in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["bare.xyz"]
+    # a slab without the record but with a cell is taken as its own 1x1 cell, with a note
+    slab = tmp_path / "cu.extxyz"
+    cu = fcc100("Cu", (1, 1, 3), vacuum=5.0)
+    cu.info.pop("adsorbate_info", None)
+    ase.io.write(slab, cu)
+    status, out, err = _run(capsys, "pattern", str(slab), "--energy", "100")
+    assert status == 0 and "no surfgeo surface record" in err
+
+
 def test_existing_output_needs_force(capsys, tmp_path):
     target = tmp_path / "beams.csv"
     target.write_text("keep me\n")

@@ -345,6 +345,14 @@ def run(args: argparse.Namespace) -> int:
 
 def _note_record(atoms, name) -> None:
     if "surfgeo" not in atoms.info:
+        from surfgeo.errors import StructureError
+
+        cell = np.asarray(atoms.cell)[:2, :2]
+        if not abs(np.linalg.det(cell)) > 1e-6:
+            raise StructureError(
+                f"{name} has neither a surfgeo surface record nor an in-plane cell (a1, a2 in the xy "
+                "plane); give a periodic slab, e.g. one written by 'surfgeo build', or a model file."
+            )
         print(
             f"surfgeo pattern: note: {name} has no surfgeo surface record; its cell is taken "
             "as the 1x1 surface cell.",
