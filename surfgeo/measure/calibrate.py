@@ -58,8 +58,8 @@ Only normal incidence is handled.
 References
 ----------
 .. [1] M. A. Fischler and R. C. Bolles, "Random sample consensus", Commun. ACM 24, 381 (1981).
-.. [2] O. Chum, J. Matas and J. Kittler, "Locally optimized RANSAC", Lecture Notes in Computer
-   Science 2781, 236 (2003).
+.. [2] O. Chum, J. Matas and J. Kittler, "Locally optimized RANSAC", Pattern Recognition
+   (DAGM 2003), LNCS 2781, 236 (2003).
 .. [3] S. Umeyama, IEEE Trans. Pattern Anal. Mach. Intell. 13, 376 (1991) (similarity from
    point correspondences).
 .. [4] R. O. Duda and P. E. Hart, "Use of the Hough transformation to detect lines and curves

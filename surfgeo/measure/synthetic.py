@@ -108,11 +108,12 @@ class SyntheticMeasurement:
         v = self.lattice.vectors
         return "vectors:" + ",".join(f"{x:.12g}" for x in (v[0, 0], v[0, 1], v[1, 0], v[1, 1]))
 
-    def render(self, *, sample_type: str = "uint16", noise: bool = True, rng=None, **kwargs):
+    def render(self, *, sample_type: str = "uint16", noise: bool = True, **kwargs):
         """The image of these spots (:func:`surfgeo.measure.render.render_pattern`).
 
         Spot photons follow the ``intensity`` column; the screen disc is the acceptance rim,
-        the gun shadow and holder those of :attr:`screen`. Returns the
+        the gun shadow and holder those of :attr:`screen`; other keywords go to the renderer
+        (its noise is reproducible by default). Returns the
         :class:`~surfgeo.measure.render.SyntheticImage`.
         """
         from surfgeo.measure.masks import GunShadow, ScreenDisc
@@ -140,7 +141,6 @@ class SyntheticMeasurement:
             gun=gun,
             sample_type=sample_type,
             noise=noise,
-            seed=rng if rng is not None else 0,
             **kwargs,
         )
 
