@@ -293,6 +293,9 @@ def test_parse_energies():
     assert np.allclose(parse_energies("40:44:2"), [40, 42, 44])
     assert np.allclose(parse_energies("100"), [100])
     assert np.allclose(parse_energies("50, 80"), [50, 80])
+    # distinct energies in increasing order: "100,100" is one energy, not a sweep of two
+    assert parse_energies("80,50,80").tolist() == [50.0, 80.0]
+    assert parse_energies("100,100").tolist() == [100.0]
     for bad in ("a", "40:30:2", "40:50:0", "-5", "1:2", "1:1000000:0.001", "30000", "100:3000:10", "nan"):
         with pytest.raises(InputError):
             parse_energies(bad)

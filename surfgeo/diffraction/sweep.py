@@ -36,7 +36,11 @@ BLOCK = 16
 
 
 def parse_energies(text: str) -> np.ndarray:
-    """Energies from ``"100"``, ``"40:300:2"`` (start:stop:step, stop included) or ``"50,80,120"``."""
+    """Energies from ``"100"``, ``"40:300:2"`` (start:stop:step, stop included) or ``"50,80,120"``.
+
+    Returns the distinct energies in increasing order (a repeated energy is computed once, so
+    ``"100,100"`` is a single energy, not a sweep).
+    """
     s = str(text).strip()
     try:
         if ":" in s:
@@ -60,7 +64,7 @@ def parse_energies(text: str) -> np.ndarray:
         raise InputError(
             f"energy {text!r} must be a number of eV, a list E1,E2,... or a range START:STOP:STEP."
         ) from None
-    return check_pattern_energies(e, f"energy {text!r}")
+    return np.unique(check_pattern_energies(e, f"energy {text!r}"))
 
 
 @dataclass
