@@ -410,3 +410,10 @@ def test_bad_options(sqrt3, capsys, tmp_path):
         ["calibrate", d / "spots.csv", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120"], capsys
     )
     assert "one --energy per input" in err
+
+
+def test_image_without_spots(capsys, tmp_path):
+    blank = tmp_path / "blank.png"
+    write_bytes(blank, encode_image(np.full((128, 128), 100.0), "png", "uint8"))
+    err = bad(["index", blank, "--lattice", "hex:2.77", "--energy", "100"], capsys)
+    assert "found only 0 spot(s)" in err

@@ -194,6 +194,11 @@ def load_measurement(path: str, screen_spec: str | None, energy: float | None = 
         raise FileFormatError(f"{p} is only {w}x{h} pixels; a LEED image needs at least 16x16.")
     masks = build_mask(image.data, screen="auto", gun="auto")
     det = detect_spots(image, mask=masks.usable)
+    if len(det.spots) < 3:
+        raise InputError(
+            f"{p}: the spot finder found only {len(det.spots)} spot(s) in the image, but a calibration needs at "
+            "least 3; check the image with 'surfgeo detect' (threshold, masks) or give a spot list."
+        )
     notes = list(det.notes)
     if "size" not in explicit and not spec.lower().endswith(".json"):
         spec = spec + ("," if ":" in spec else ":") + f"size={w}x{h}"
