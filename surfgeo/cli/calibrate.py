@@ -196,8 +196,8 @@ def load_measurement(path: str, screen_spec: str | None, energy: float | None = 
     det = detect_spots(image, mask=masks.usable)
     if len(det.spots) < 3:
         raise InputError(
-            f"{p}: the spot finder found only {len(det.spots)} spot(s) in the image, but a calibration needs at "
-            "least 3; check the image with 'surfgeo detect' (threshold, masks) or give a spot list."
+            f"{p}: the spot finder found only {len(det.spots)} spot(s) in the image, but a calibration needs "
+            "at least 3; check the image with 'surfgeo detect' (threshold, masks) or give a spot list."
         )
     notes = list(det.notes)
     if "size" not in explicit and not spec.lower().endswith(".json"):
