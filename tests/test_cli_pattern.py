@@ -287,3 +287,23 @@ def test_hidden_beams_say_why(capsys):
     assert status == 0, err
     spec = next(line for line in out.splitlines() if line.split()[:2] == ["0", "0"])
     assert spec.endswith("(shadow)") and "(off screen)" not in out
+
+
+def test_kspace_screen_edge_follows_the_gun_axis():
+    # a regression: the spot map drew the acceptance as a circle about k_par = 0, which is right at
+    # normal incidence only
+    from surfgeo.plot.spotmap import acceptance_edge
+    from surfgeo.screen import FarScreen
+
+    for inc in [(0.0, 0.0), (25.0, 20.0), (60.0, 200.0)]:
+        edge = acceptance_edge(120.0, 40.0, inc)
+        ok = np.isfinite(edge[:, 0])
+        assert ok.sum() > 100
+        # Common practice, no source: every edge point is a beam 40 degrees from the screen (gun) axis
+        ang = FarScreen().angle_from_axis(edge[ok], 120.0, inc)
+        assert np.allclose(ang, 40.0, atol=1e-9)
+        r = np.hypot(edge[ok, 0], edge[ok, 1])
+        if inc[0] == 0:
+            assert np.allclose(r, math.sqrt(120.0 / HBAR2_2M) * math.sin(math.radians(40.0)))
+        else:
+            assert r.max() - r.min() > 0.2 * r.max()

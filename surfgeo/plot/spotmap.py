@@ -197,6 +197,24 @@ def _title(pattern) -> str:
     return f"{pattern.energy:g} eV, {where}"
 
 
+def acceptance_edge(energy: float, theta_max: float, incidence_xy, n: int = 721) -> np.ndarray:
+    """Parallel momenta (n, 2) of the beams at ``theta_max`` from the screen axis (1/Angstrom).
+
+    The acceptance cone is centred on the gun axis, so at oblique incidence its edge in k-space
+    is not a circle about the origin. Points of the cone that leave no beam (behind the
+    surface) are NaN, which breaks the line there.
+    """
+    from surfgeo.diffraction.electron import from_gun_frame, wavenumber
+
+    t = math.radians(theta_max)
+    psi = np.linspace(0.0, 2.0 * math.pi, n)
+    cone = np.stack([math.sin(t) * np.cos(psi), math.sin(t) * np.sin(psi), np.full(n, math.cos(t))], axis=-1)
+    d = from_gun_frame(cone, incidence_xy)
+    kp = wavenumber(energy) * d[:, :2]
+    kp[~(d[:, 2] > 0)] = np.nan
+    return kp
+
+
 def draw_kspace(ax, pattern) -> None:
     """Spot map in parallel momentum (1/Angstrom) on ``ax``."""
     from matplotlib.patches import Circle
@@ -208,17 +226,8 @@ def draw_kspace(ax, pattern) -> None:
     kin = incident_k_parallel(pattern.energy, pattern.incidence_xy)
     ax.add_patch(Circle((0, 0), k, fill=False, ls="--", lw=0.8, ec="#9a8c98", zorder=1))
     if pattern.theta_max < 90:
-        ax.add_patch(
-            Circle(
-                (0, 0),
-                k * math.sin(math.radians(pattern.theta_max)),
-                fill=False,
-                ls=":",
-                lw=0.8,
-                ec="#9a8c98",
-                zorder=1,
-            )
-        )
+        edge = acceptance_edge(pattern.energy, pattern.theta_max, pattern.incidence_xy)
+        ax.plot(edge[:, 0], edge[:, 1], ls=":", lw=0.8, color="#9a8c98", zorder=1)
     ax.plot([kin[0]], [kin[1]], marker="+", color="#9a8c98", ms=10, zorder=2)
     markers, colours, sizes, hollow = _style(pattern)
     _scatter(ax, pattern.k_parallel, pattern, markers, colours, sizes, hollow, edge_dark=False)
@@ -229,7 +238,8 @@ def draw_kspace(ax, pattern) -> None:
     ax.set_aspect("equal")
     ax.set_xlabel("k$_x$ (1/\u00c5)")
     ax.set_ylabel("k$_y$ (1/\u00c5)")
-    ax.set_title("parallel momentum (dashed: |k$_\\parallel$| = k)", fontsize=9)
+    dotted = "; dotted: screen edge" if pattern.theta_max < 90 else ""
+    ax.set_title(f"parallel momentum (dashed: |k$_\\parallel$| = k{dotted})", fontsize=9)
 
 
 def draw_screen(ax, pattern, screen, annotate: bool = True) -> None:
@@ -302,6 +312,8 @@ def plot_pattern(pattern, path, screen=None, force: bool = False, view: str = "b
         if pattern.intensity is not None
         else "positions only (no atoms given)"
     )
+    if pattern.intensity is not None and pattern.incidence[0] > 0 and pattern.extinct.any():
+        note += "; hollow (kinematically extinct) spots off normal incidence are not predictions"
     fig.text(0.01, 0.01, note, fontsize=7, color="#555555")
     fig.subplots_adjust(right=0.83, wspace=0.25)
     save_figure(fig, path, force)
@@ -338,7 +350,7 @@ def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
             ax.add_collection(lc)
         if not ok.any():
             continue
-        first = np.flatnonzero(ok)[0]
+        first, last = np.flatnonzero(ok)[[0, -1]]
         integer = sweep.base.integer[sweep.index[j]]
         entering = sweep.onset[j] > e[0]
         ax.plot(
@@ -350,9 +362,10 @@ def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
             mew=0.5,
         )
         if j in labelled:
-            text = _label(sweep.hk[j]) + (f"\n{sweep.onset[j]:.0f} eV" if entering else "")
+            # at the highest energy on the screen: beams entering together at the rim part there
+            text = _label(sweep.hk[j]) + (f" ({sweep.onset[j]:.0f} eV)" if entering else "")
             ax.annotate(
-                text, p[first], xytext=(3, 3), textcoords="offset points", fontsize=5.5, color="#e5e5e5"
+                text, p[last], xytext=(3, 3), textcoords="offset points", fontsize=5.5, color="#e5e5e5"
             )
     fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, label="energy (eV)", shrink=0.8)
     ax.set_xlim(-0.5, screen.width - 0.5)
@@ -362,8 +375,8 @@ def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
     ax.set_ylabel("y (px)")
     where = _title(sweep.base).split(", ", 1)[1]
     ax.set_title(
-        f"Spot trajectories {e.min():g}\u2013{e.max():g} eV ({where}); "
-        "ringed dots: where a beam enters the screen (onset energy)",
+        f"Spot trajectories {e.min():g}\u2013{e.max():g} eV ({where})\n"
+        "ringed dot: a beam enters the screen; label (onset) at the highest energy",
         fontsize=9,
     )
     save_figure(fig, path, force)
