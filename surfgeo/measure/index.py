@@ -1507,6 +1507,5 @@ __all__ = [
     "IndexCandidate",
     "IndexResult",
     "candidate_count",
-    "fit_incommensurate",
     "index_pattern",
 ]
