@@ -279,6 +279,31 @@ def test_screen_and_shadow_found():
     assert (shadow[truth]).mean() > 0.97  # the true shadow is covered
 
 
+@pytest.mark.parametrize(
+    "shape, screen, glow",
+    [
+        # a regression: the rim test compared the step at the rim with the screen's median, and a
+        # glow peaked at the centre is dimmer at the rim than on average, so these were missed and
+        # the dark corners were reported as a "gun shadow"
+        ((200, 240), ScreenDisc(120.0, 100.0, 95.0), (100.0, 300.0)),
+        ((200, 200), ScreenDisc(100.0, 100.0, 98.0), (17.0, 400.0)),  # Otsu follows the glow
+        ((160, 160), ScreenDisc(80.0, 80.0, 65.0), (9.0, 330.0)),
+    ],
+)
+def test_screen_found_under_a_glow_peaked_at_the_centre(shape, screen, glow):
+    gun = GunShadow(screen.centre_x + 2, screen.centre_y + 2, 10.0, 60.0, 8.0)
+    syn = render_pattern(shape, [[60.0, 70.0]], 3e4, 2.0, screen=screen, gun=gun, glow_level=glow[0],
+                         glow_peak=glow[1], seed=1)
+    found = find_screen(syn.image)
+    # Source: the rendered geometry (truth); the rim is blurred by 1.5 px
+    assert found is not None
+    assert np.hypot(found.centre_x - screen.centre_x, found.centre_y - screen.centre_y) < 1.5
+    assert found.radius == pytest.approx(screen.radius, abs=2.5)
+    masks = build_mask(syn.image)
+    assert masks.screen_found and masks.shadow is not None
+    assert masks.shadow.mean() < 2 * gun_mask(shape, gun).mean()  # the corners are not called a shadow
+
+
 def test_no_screen_and_no_shadow_when_there_are_none():
     rng = np.random.default_rng(3)
     pos = random_positions(rng, 20, (300, 300), 20, border=10)

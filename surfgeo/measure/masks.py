@@ -209,11 +209,15 @@ def _robust_circle(x: np.ndarray, y: np.ndarray, iterations: int = 8):
 def find_screen(data: np.ndarray, lowres: _LowRes | None = None) -> ScreenDisc | None:
     """Find the bright screen disc automatically, or return None when there is no clear one.
 
-    The disc is accepted only if its rim is well described by a circle (at least half of
-    the rim pixels within 1.5 block-pixels of it, RMS deviation at most 1.5 block-pixels),
-    the bright region fills most of the circle, the contrast between the screen and the
-    surroundings is at least 5 times the noise of the block averages, and the rim is sharp
-    (more than half of that contrast is crossed within +-2 block-pixels of the circle).
+    The bright region is first the part above Otsu's threshold; when the glow peaks strongly
+    at the centre that threshold can follow a contour of the glow inside the screen, so two
+    lower thresholds (half and a quarter of the way from the dark level, the 2nd percentile)
+    are tried next. A disc is accepted only if its rim is well described by a circle (at
+    least half of the rim pixels within 1.5 block-pixels of it, RMS deviation at most 1.5
+    block-pixels), the bright region fills most of the circle, the contrast between the
+    screen and the surroundings is at least 5 times the noise of the block averages, and the
+    rim is sharp (across +-2 block-pixels of the circle more than half of the change between
+    +-6 block-pixels is crossed).
 
     Parameters
     ----------
@@ -226,13 +230,27 @@ def find_screen(data: np.ndarray, lowres: _LowRes | None = None) -> ScreenDisc |
         Centre and radius in full-resolution pixels.
     """
     lr = lowres or _lowres(np.asarray(data))
-    img, f = lr.img, lr.factor
+    img = lr.img
     t = _otsu(img.ravel())
     bright = img > t
     dark = ~bright
     if bright.sum() < 50 or dark.sum() < 50:
         return None
     if float(np.median(img[bright]) - np.median(img[dark])) < 5 * lr.noise:
+        return None
+    low = float(np.percentile(img, 2.0))
+    for level in (t, low + 0.5 * (t - low), low + 0.25 * (t - low)):
+        disc = _disc_above(lr, level)
+        if disc is not None:
+            return disc
+    return None
+
+
+def _disc_above(lr: _LowRes, level: float) -> ScreenDisc | None:
+    """The screen disc as the largest region of ``lr.img`` above ``level``, if it passes the tests."""
+    img, f = lr.img, lr.factor
+    bright = img > level
+    if bright.sum() < 50 or (~bright).sum() < 50:
         return None
     labels, n = ndi.label(bright)
     if n == 0:
@@ -256,19 +274,30 @@ def find_screen(data: np.ndarray, lowres: _LowRes | None = None) -> ScreenDisc |
     circle = (xx - cx) ** 2 + (yy - cy) ** 2 <= (r + 0.5) ** 2
     if comp[circle].mean() < 0.7 or circle[comp].mean() < 0.95:
         return None
-    # a screen has a sharp rim: across +-2 block-pixels most of the inside-outside contrast
-    # is crossed (the iso-line of a smooth glow is round too, but its edge is gentle)
+    # a screen has a sharp rim: across +-2 block-pixels most of the change in brightness
+    # between +-6 block-pixels is crossed (the iso-line of a smooth glow is round too, but its
+    # edge is gentle). The comparison is local: the glow usually peaks at the centre, so the
+    # screen is dimmer at its rim than on average.
     ang = np.linspace(0, 2 * np.pi, 180, endpoint=False)
     cos, sin = np.cos(ang), np.sin(ang)
-    inner = ndi.map_coordinates(img, [cy + (r - 2) * sin, cx + (r - 2) * cos], order=1, mode="nearest")
-    outer = ndi.map_coordinates(img, [cy + (r + 2) * sin, cx + (r + 2) * cos], order=1, mode="nearest")
-    on_image = ((cx + (r + 2) * cos >= 0) & (cx + (r + 2) * cos <= img.shape[1] - 1)
-                & (cy + (r + 2) * sin >= 0) & (cy + (r + 2) * sin <= img.shape[0] - 1))
+
+    def ring(dr):
+        y, x = cy + (r + dr) * sin, cx + (r + dr) * cos
+        on = (x >= 0) & (x <= img.shape[1] - 1) & (y >= 0) & (y <= img.shape[0] - 1)
+        return ndi.map_coordinates(img, [y, x], order=1, mode="nearest"), on
+
+    far = min(6.0, 0.5 * r)
+    inner, _ = ring(-2.0)
+    outer, on_image = ring(2.0)
+    inner_far, _ = ring(-far)
+    outer_far, on_far = ring(far)
     if on_image.sum() < 30:
         return None
-    contrast = float(np.median(img[comp]) - np.median(img[~ndi.binary_dilation(comp, iterations=2)]))
-    step = float(np.median((inner - outer)[on_image]))
-    if not step > 0.5 * contrast:
+    if on_far.sum() < 30:  # the screen touches the image border: the far side is not seen
+        outer_far, on_far = outer, on_image
+    step = float(np.median((inner - outer)[on_far]))
+    local = float(np.median((inner_far - outer_far)[on_far]))
+    if not (local > 5 * lr.noise and step > 0.5 * local):
         return None
     # rim pixels are the outermost bright pixels: the threshold crossing is half a block further
     return ScreenDisc(centre_x=(cx + 0.5) * f - 0.5, centre_y=(cy + 0.5) * f - 0.5, radius=(r + 0.5) * f)
