@@ -414,3 +414,17 @@ def test_bad_inputs_are_input_errors():
         detect_spots(img, gain=-2.0)
     with pytest.raises(InputError, match="exclusion mask"):
         build_mask(img, exclude=np.zeros((3, 3), dtype=bool))
+
+
+def test_noise_free_images_report_their_background():
+    # a regression: with zero noise every background pixel was rejected as an outlier and the
+    # background was reported as 0 (a constant image of 7 said "background 0")
+    det = detect_spots(np.full((64, 64), 7.0), spot_sigma=2.0)
+    assert det.background_level == pytest.approx(7.0, rel=1e-6) and len(det.spots) == 0
+    syn = render_pattern((48, 64), [[10.0, 20.0]], 2e4, 1.8, glow_level=50, glow_peak=0, noise=False)
+    det = detect_spots(syn.image, spot_sigma=1.8)
+    # Source: the rendered image (truth): offset 100 + glow 50 + stray light 2 ADU per pixel
+    assert det.background_level == pytest.approx(152.0, rel=1e-6)
+    assert len(det.spots) == 1
+    # Source: a 2D Gaussian holds 1 - exp(-9/2) = 0.9889 of its light within 3 sigma
+    assert det.spots.intensity[0] == pytest.approx((1 - np.exp(-4.5)) * 2e4, rel=0.01)

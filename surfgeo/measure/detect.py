@@ -567,8 +567,11 @@ def _front(
     usable_mesh = w0 > 0
     if not usable_mesh.any():
         raise InputError("too few usable pixels to estimate the background; check the masks.")
-    pix_noise0 = np.maximum(_fill_meshes(_MAD * mad0, usable_mesh), 1e-12)
     bg0 = _fill_meshes(bg0, usable_mesh)
+    # a noise floor relative to the level: a noise-free (e.g. constant) image must not have
+    # zero noise, which would reject every pixel of the background planes below
+    floor = 1e-6 * max(1.0, float(np.max(np.abs(bg0))))
+    pix_noise0 = np.maximum(_fill_meshes(_MAD * mad0, usable_mesh), floor)
     around = ndi.median_filter(bg0, size=3, mode="nearest")
     bright = bg0 - around > 3 * 1.25 * pix_noise0 / m
     if quick:
@@ -585,7 +588,6 @@ def _front(
     # by one spot width) are left out; the background is measured again without them: a
     # plane fit per mesh, smoothed by local quadratic regression, interpolated by cubic
     # convolution
-    floor = 1e-6 * max(1.0, float(np.max(np.abs(bg0))))
     s_sub = smooth[::2, ::2] - up.sub(bg0)
     med, mad, wt = _mesh_stats(s_sub, ok_sub, m)
     wt = wt * usable_mesh
