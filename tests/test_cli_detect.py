@@ -148,6 +148,8 @@ def test_bad_images(tmp_path, capsys, content, words):
         (["--threshold", "-3"], "--threshold"),
         (["--plot", "out.jpg"], ".png or .svg"),
         (["--margin", "-1"], "--margin"),
+        (["--saturation", "nan"], "--saturation"),  # was silently ignored
+        (["--saturation", "-5"], "saturation level"),  # was "too few usable pixels ... check the masks"
     ],
 )
 def test_bad_options(scene, tmp_path, capsys, extra, words):

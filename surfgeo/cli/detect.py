@@ -194,6 +194,8 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"--margin must be a number of pixels >= 0, got {args.margin}.")
     if args.spot_sigma is not None and not (math.isfinite(args.spot_sigma) and args.spot_sigma > 0):
         raise InputError(f"--spot-sigma must be a positive width in px, got {args.spot_sigma}.")
+    if args.saturation is not None and not math.isfinite(args.saturation):
+        raise InputError(f"--saturation must be a finite pixel value, got {args.saturation}.")
     threshold = DEFAULT_THRESHOLD if args.threshold is None else args.threshold
     if not (math.isfinite(threshold) and threshold > 0):
         raise InputError(f"--threshold must be a positive number of noise units, got {threshold}.")

@@ -954,7 +954,14 @@ def _prepare(image, mask, saturation):
         raise InputError(
             "no usable pixels are left after masking; check the screen, gun and exclusion masks."
         )
+    if saturation is not None and not math.isfinite(float(saturation)):
+        raise InputError(f"the saturation level must be a finite number of image units, got {saturation!r}.")
     sat = (data >= saturation) & finite if saturation is not None else np.zeros(data.shape, dtype=bool)
+    if sat[usable].all():
+        raise InputError(
+            f"every usable pixel is at or above the saturation level {float(saturation):g}; give the "
+            "camera's real saturation level."
+        )
     return data, usable, sat
 
 
