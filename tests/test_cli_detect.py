@@ -171,3 +171,21 @@ def test_missing_image_and_wrong_exclusion_size(scene, tmp_path, capsys):
     code, _, err = _run(["detect", str(png), "--exclude", str(small)], capsys)
     assert code == 2 and "must match" in err
     _clean_error(err)
+
+
+def test_figure_legend_names_only_what_is_drawn():
+    from surfgeo.measure.spotlist import SpotList
+    from surfgeo.plot.spots import spots_figure
+
+    img = np.random.default_rng(1).normal(100, 3, (40, 50))
+    spots = SpotList.from_columns([10.0], [20.0], sigma=[2.0])
+
+    def labels(usable):
+        fig = spots_figure(img, spots, usable=usable)
+        return [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
+
+    # a regression: "edge of the usable region" was listed when every pixel was usable (no edge drawn)
+    assert labels(np.ones(img.shape, dtype=bool)) == ["spots (1)"]
+    part = np.ones(img.shape, dtype=bool)
+    part[:, :10] = False
+    assert labels(part) == ["spots (1)", "edge of the usable region"]

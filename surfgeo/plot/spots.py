@@ -67,10 +67,12 @@ def spots_figure(
     ax = fig.add_subplot(1, 1, 1)
     ax.imshow(np.clip(data, lo, hi), cmap="gray", norm=PowerNorm(0.5, vmin=lo, vmax=hi),
               origin="upper", interpolation="nearest")
+    outlined = False
     if usable is not None:
         u = np.asarray(usable, dtype=float)
         if 0 < u.mean() < 1:
             ax.contour(u, levels=[0.5], colors=[MASK_COLOUR], linewidths=0.8)
+            outlined = True
     n = len(spots)
     if n:
         if radius is None:
@@ -97,7 +99,7 @@ def spots_figure(
     if n and spots.edge.any():
         handles.append(Line2D([], [], ls="", marker="o", mfc="none", mec=EDGE_COLOUR,
                               label="touching a mask or the border"))
-    if usable is not None:
+    if outlined:
         handles.append(Line2D([], [], color=MASK_COLOUR, label="edge of the usable region"))
     ax.legend(handles=handles, loc="upper right", fontsize=7, framealpha=0.7)
     if title:
