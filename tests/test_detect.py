@@ -428,3 +428,15 @@ def test_noise_free_images_report_their_background():
     assert len(det.spots) == 1
     # Source: a 2D Gaussian holds 1 - exp(-9/2) = 0.9889 of its light within 3 sigma
     assert det.spots.intensity[0] == pytest.approx((1 - np.exp(-4.5)) * 2e4, rel=0.01)
+
+
+@pytest.mark.parametrize("shape", [(12, 300), (40, 400)])
+def test_narrow_images(shape):
+    # a regression: meshes were limited by the longer side only, so an image less than about 40 px
+    # high had no usable mesh and was refused with "too few usable pixels ... check the masks"
+    h, w = shape
+    pos = [[50.0, h / 2], [200.0, h / 2 + 0.7]]
+    syn = render_pattern(shape, pos, 2e4, 1.5, glow_level=80, glow_peak=0, seed=2)
+    det = detect_spots(syn.image)
+    j = _match(np.array(pos), det.spots.positions, 1.0)
+    assert (j >= 0).all() and len(det.spots) == 2  # Source: the rendered positions (truth)

@@ -499,7 +499,8 @@ def _mesh_size(sigma: float, shape: tuple[int, int], mesh_size: int | None) -> i
     else:
         b = max(16, int(math.ceil(8 * sigma)))
     b += b % 2
-    return min(b, max(4, 2 * (max(shape) // 2)))
+    # no larger than the image (its shorter side): a mesh must hold enough usable pixels
+    return min(b, max(4, 2 * (min(shape) // 2)))
 
 
 # ---------------------------------------------------------------------------------------
