@@ -189,3 +189,19 @@ def test_figure_legend_names_only_what_is_drawn():
     part = np.ones(img.shape, dtype=bool)
     part[:, :10] = False
     assert labels(part) == ["spots (1)", "edge of the usable region"]
+
+
+def test_csv_to_standard_output(scene, tmp_path, capsys, monkeypatch):
+    # a regression: "-o -" wrote a file named "-" (and "surfgeo pattern --csv -" then refused it)
+    syn, png, _ = scene
+    monkeypatch.chdir(tmp_path)
+    code, out, err = _run(["detect", str(png), "-o", "-"], capsys)
+    assert code == 0, err
+    assert not (tmp_path / "-").exists()
+    assert out.startswith("x,y,")  # only the CSV, no report
+    from surfgeo.io.spots import parse_spot_csv
+
+    assert _found_all(parse_spot_csv(out), syn.positions)
+    code, _, err = _run(["detect", str(png), "-o", "-", "--json", "-"], capsys)
+    assert code == 2 and "standard output" in err
+    _clean_error(err)

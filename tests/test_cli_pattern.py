@@ -307,3 +307,15 @@ def test_kspace_screen_edge_follows_the_gun_axis():
             assert np.allclose(r, math.sqrt(120.0 / HBAR2_2M) * math.sin(math.radians(40.0)))
         else:
             assert r.max() - r.min() > 0.2 * r.max()
+
+
+def test_csv_to_standard_output(capsys, tmp_path, monkeypatch):
+    # a regression: "--csv -" wrote a file named "-"
+    monkeypatch.chdir(tmp_path)
+    status, out, err = _run(capsys, "pattern", "--lattice", "square:2.55", "--energy", "90", "--csv", "-")
+    assert status == 0, err
+    assert out.startswith("energy_eV,h,k,") and not (tmp_path / "-").exists()
+    assert len(out.splitlines()) == 1 + sum(1 for line in out.splitlines()[1:] if line.startswith("90,"))
+    status, _, err = _run(capsys, "pattern", "--lattice", "square:2.55", "--energy", "90", "--csv", "-",
+                          "--json", "-")
+    assert status == 2 and "standard output" in err and "Traceback" not in err

@@ -49,7 +49,8 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("image", metavar="IMAGE", help="PNG or TIFF image of the screen")
-    p.add_argument("-o", "--output", metavar="FILE", help="write the spot list as CSV to FILE")
+    p.add_argument("-o", "--output", metavar="FILE",
+                   help="write the spot list as CSV to FILE ('-' for stdout)")
     add_output_options(p, plot=True)
     p.add_argument("--spot-sigma", type=float, metavar="PX",
                    help="Gaussian width of the spots in px (default: measured on the brightest spots)")
@@ -177,19 +178,19 @@ def report_lines(image, masks, det) -> list[str]:
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
+    from surfgeo.cli._common import check_outputs
     from surfgeo.errors import InputError
-    from surfgeo.io import check_writable, dump_json
+    from surfgeo.io import dump_json
     from surfgeo.measure.detect import DEFAULT_THRESHOLD, detect_spots
     from surfgeo.measure.images import read_image
     from surfgeo.measure.masks import build_mask
 
-    outputs = [d for d in (args.output, args.json, args.plot) if d and d != "-"]
-    if len(set(outputs)) != len(outputs):
-        raise InputError("--output, --json and --plot must name different files.")
-    for dest in outputs:
-        check_writable(dest, args.force)
-    if args.plot and not args.plot.lower().endswith((".png", ".svg")):
-        raise InputError(f"--plot {args.plot!r} must end in .png or .svg.")
+    check_outputs({"--output": args.output, "--json": args.json, "--plot": args.plot}, args.force,
+                  figure="--plot")
+    if args.output == "-" and args.json == "-":
+        raise InputError("-o - and --json - both ask for standard output; send one of them to a file.")
+    if args.plot == "-":
+        raise InputError("--plot cannot go to standard output; give a file name.")
     if args.margin is not None and not (math.isfinite(args.margin) and args.margin >= 0):
         raise InputError(f"--margin must be a number of pixels >= 0, got {args.margin}.")
     if args.spot_sigma is not None and not (math.isfinite(args.spot_sigma) and args.spot_sigma > 0):
@@ -221,10 +222,14 @@ def run(args: argparse.Namespace) -> int:
         "masks": masks.to_dict(),
         **det.to_dict(),
     }
-    if args.json != "-":
+    if "-" not in (args.json, args.output):
         sys.stdout.write("\n".join(report_lines(image, masks, det)) + "\n")
         sys.stdout.flush()
-    if args.output:
+    if args.output == "-":
+        from surfgeo.io.spots import spot_csv_text
+
+        sys.stdout.write(spot_csv_text(det.spots))
+    elif args.output:
         from surfgeo.io.spots import write_spot_csv
 
         write_spot_csv(args.output, det.spots, force=args.force)

@@ -142,7 +142,8 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         help="sample temperature for the Debye-Waller factors, K (default 300)",
     )
     add_output_options(p, plot=True)
-    p.add_argument("--csv", metavar="FILE", help="write the beam table (or positions versus energy) as CSV")
+    p.add_argument("--csv", metavar="FILE",
+                   help="write the beam table (or positions versus energy) as CSV to FILE ('-' for stdout)")
     p.add_argument(
         "--view",
         choices=("both", "kspace", "screen"),
@@ -210,26 +211,36 @@ def _parse_weights(text: str | None):
         ) from None
 
 
-def _outputs(args) -> list[str]:
-    return [p for p in (args.json, args.csv, args.plot, args.animate) if p and p != "-"]
-
-
 def _check_outputs(args) -> None:
+    """Refuse unwritable or clashing outputs before any work (``-`` is standard output)."""
+    from surfgeo.cli._common import check_outputs
     from surfgeo.errors import InputError
-    from surfgeo.io import check_writable
 
-    paths = _outputs(args)
-    if len(set(paths)) != len(paths):
-        raise InputError(
-            "two outputs name the same file; give each of --json, --csv, --plot, --animate its own."
-        )
-    for p in paths:
-        check_writable(p, args.force)
-    for opt, path in (("--plot", args.plot),):
-        if path and not path.lower().endswith((".png", ".svg")):
-            raise InputError(f"{opt} {path}: the figure must end in .png or .svg.")
+    check_outputs({"--json": args.json, "--csv": args.csv, "--plot": args.plot, "--animate": args.animate},
+                  args.force, figure="--plot")
     if args.animate and not args.animate.lower().endswith(".gif"):
         raise InputError(f"--animate {args.animate}: the animation must end in .gif.")
+    if args.json == "-" and args.csv == "-":
+        raise InputError("--json - and --csv - both ask for standard output; send one of them to a file.")
+    for opt, path in (("--plot", args.plot), ("--animate", args.animate)):
+        if path == "-":
+            raise InputError(f"{opt} cannot go to standard output; give a file name.")
+
+
+def _write_outputs(args, text: str, data_fn, csv_text: str) -> None:
+    """The text report (unless JSON or CSV go to standard output), then JSON and CSV."""
+    if "-" not in (args.json, args.csv):
+        sys.stdout.write(text)
+    if args.json:
+        from surfgeo.io import dump_json
+
+        dump_json(data_fn(), args.json, args.force)
+    if args.csv == "-":
+        sys.stdout.write(csv_text)
+    elif args.csv:
+        from surfgeo.io import write_text
+
+        write_text(args.csv, csv_text, args.force)
 
 
 def _fmt(x, width: int, prec: int = 2) -> str:
@@ -297,7 +308,7 @@ def run(args: argparse.Namespace) -> int:
             **(kin if atoms else {}),
         )
         text = sweep_report(result, screen)
-        csv_text = sweep_csv(result, screen)
+        csv_text = sweep_csv(result, screen) if args.csv else ""
     else:
         from surfgeo.diffraction.pattern import slab_pattern, superstructure_pattern
 
@@ -318,18 +329,9 @@ def run(args: argparse.Namespace) -> int:
                 double_order=args.double_order,
             )
         text = pattern_report(result, screen)
-        csv_text = pattern_csv(result, screen)
+        csv_text = pattern_csv(result, screen) if args.csv else ""
 
-    if args.json != "-":
-        sys.stdout.write(text)
-    if args.json:
-        from surfgeo.io import dump_json
-
-        dump_json(result.to_dict(screen), args.json, args.force)
-    if args.csv:
-        from surfgeo.io import write_text
-
-        write_text(args.csv, csv_text, args.force)
+    _write_outputs(args, text, lambda: result.to_dict(screen), csv_text)
     if args.plot or args.animate:
         from surfgeo.plot import spotmap
 
@@ -399,18 +401,13 @@ def _run_reference(args, energies, incidence, weights, screen, theta_max, sweep:
 
         comp = compare_slab_patterns(relaxed, reference, float(energies[0]), incidence, **opts)
         text = comparison_report(comp, screen, names, args.top)
-    if args.json != "-":
-        sys.stdout.write(text)
-    if args.json:
-        from surfgeo.io import dump_json
 
-        data = comp.to_dict(screen, top=args.top)
-        data["reference"] = {"file": names[1], "relaxed_file": names[0], **data["reference"]}
-        dump_json(data, args.json, args.force)
-    if args.csv:
-        from surfgeo.io import write_text
+    def data():
+        out = comp.to_dict(screen, top=args.top)
+        out["reference"] = {"file": names[1], "relaxed_file": names[0], **out["reference"]}
+        return out
 
-        write_text(args.csv, comparison_csv(comp, screen), args.force)
+    _write_outputs(args, text, data, comparison_csv(comp, screen) if args.csv else "")
     if args.plot or args.animate:
         from surfgeo.plot import spotmap
 
