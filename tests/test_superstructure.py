@@ -216,3 +216,26 @@ def test_same_superlattice_method():
     assert not a.same_superlattice([[2, 0], [0, 2]])
     # by hand: (2,1) + (-1,1) = (1,2) and (2,1) + 2(-1,1) = (0,3) span the same lattice
     assert a.canonical().tolist() == [[1, 2], [0, 3]]
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    v=st.one_of(
+        st.floats(-20, 20, allow_nan=False),
+        st.builds(lambda p, q, e: p / q + e, st.integers(-500, 500), st.integers(1, 2000),
+                  st.floats(-1e-12, 1e-12)),
+    ),
+    max_den=st.sampled_from([2, 7, 12, 48, 64, 65, 100, 2000]),
+)
+def test_closest_denominators_agree_with_fraction_limit_denominator(v, max_den):
+    from surfgeo.lattice.rational import closest_denominators
+
+    (q,) = closest_denominators([v], max_den).tolist()
+    # Source: Python's fractions.Fraction.limit_denominator (the closest fraction with a bounded
+    # denominator) as the reference implementation.
+    ref = Fraction(v).limit_denominator(max_den)
+    err = abs(v - round(v * q) / q)
+    ref_err = abs(v - float(ref))
+    assert 1 <= q <= max_den and err <= ref_err + 1e-12
+    if q != ref.denominator:  # only for two equally close fractions, and then the smaller denominator
+        assert abs(err - ref_err) <= 1e-12 and q < ref.denominator

@@ -51,6 +51,43 @@ def snap_rational(x: float, tol: float, max_den: int = SMALL_DENOMINATOR) -> Fra
     return None
 
 
+def closest_denominators(values, max_den: int) -> np.ndarray:
+    """Denominator of the fraction closest to each value among those with denominators up to
+    ``max_den`` (what ``Fraction(v).limit_denominator(max_den).denominator`` gives), for many
+    values in one numpy pass.
+
+    Among fractions equally close within 1e-12 the smallest denominator wins, so a value that
+    is a small rational up to rounding noise gets that rational's denominator.
+
+    Examples
+    --------
+    >>> closest_denominators([0.5, 0.33333333, 2.0, 0.2499999999], 48).tolist()
+    [2, 3, 1, 4]
+    """
+    v = np.asarray(values, dtype=float).ravel()
+    if v.size == 0:
+        return np.zeros(0, dtype=np.int64)
+    max_den = int(max_den)
+    small = min(max_den, 64)
+    out = _closest_denominators(v, small)
+    if small < max_den:
+        # a fraction p/q (q <= small) within 1 / (4 small max_den) of v is the closest with any
+        # denominator up to max_den: two different such fractions differ by >= 1 / (small max_den)
+        err = np.abs(v - np.rint(v * out) / out)
+        far = err >= 0.25 / (small * max_den)
+        if np.any(far):
+            out[far] = _closest_denominators(v[far], max_den)
+    return out
+
+
+def _closest_denominators(v: np.ndarray, max_den: int) -> np.ndarray:
+    q = np.arange(1, max_den + 1, dtype=float)
+    x = v[:, None] * q[None, :]
+    err = np.abs(x - np.rint(x)) / q[None, :]
+    best = err.min(axis=1, keepdims=True)
+    return np.argmax(err <= best + 1e-12, axis=1).astype(np.int64) + 1
+
+
 def parse_number(text: str, field: str) -> tuple[Fraction | float, int | None]:
     """Read an integer, a fraction ``a/b`` or a decimal typed by a person.
 

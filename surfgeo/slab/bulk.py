@@ -25,6 +25,7 @@ from ase import Atoms
 
 from surfgeo.checks import positive_number
 from surfgeo.errors import FileFormatError, StructureError
+from surfgeo.lattice.rational import closest_denominators
 
 #: Key of the bulk description in ``atoms.info``.
 BULK_KEY = "surfgeo_bulk"
@@ -508,8 +509,18 @@ def bulk_description(bulk: Atoms) -> dict:
 
 def is_hexagonal_cell(bulk: Atoms, tol: float = 1e-4) -> bool:
     """True when the cell has |a1| = |a2|, a3 perpendicular to both, and 120 degrees between a1, a2."""
-    lengths = bulk.cell.lengths()
-    angles = bulk.cell.angles()
+    a, b, c = np.asarray(bulk.cell[:], dtype=float).tolist()
+
+    def dot(u, v):
+        return u[0] * v[0] + u[1] * v[1] + u[2] * v[2]
+
+    lengths = [math.sqrt(dot(u, u)) for u in (a, b, c)]
+    if min(lengths) <= 0:
+        return False
+    # alpha (b, c), beta (a, c), gamma (a, b), in degrees, as ASE's Cell.angles orders them
+    angles = [math.degrees(math.acos(max(-1.0, min(1.0, dot(u, v) / (lu * lv)))))
+              for u, v, lu, lv in ((b, c, lengths[1], lengths[2]), (a, c, lengths[0], lengths[2]),
+                                   (a, b, lengths[0], lengths[1]))]
     return bool(
         abs(lengths[0] - lengths[1]) <= tol * lengths[0]
         and abs(angles[2] - 120.0) <= 1e-2
@@ -529,13 +540,12 @@ def translation_lattice(bulk: Atoms, symprec: float = 1e-3) -> np.ndarray:
     (Angstrom). Cells of more than 256 atoms ask spglib instead. The basis is returned as
     rational combinations of the cell vectors with small denominators, so it is exact.
     """
-    from fractions import Fraction
-
     cell = np.asarray(bulk.cell[:], dtype=float)
-    frac = bulk.get_scaled_positions()
-    key = (cell.tobytes(), frac.tobytes(), np.asarray(bulk.numbers).tobytes(), float(symprec))
+    pos = np.asarray(bulk.positions, dtype=float)
+    key = (cell.tobytes(), pos.tobytes(), np.asarray(bulk.numbers).tobytes(), float(symprec))
     if key in _TL_CACHE:
         return _TL_CACHE[key].copy()
+    frac = np.linalg.solve(cell.T, pos.T).T % 1.0
     if len(bulk) <= 256:
         trans = _pure_translations(cell, frac, np.asarray(bulk.numbers), symprec)
     else:
@@ -545,19 +555,11 @@ def translation_lattice(bulk: Atoms, symprec: float = 1e-3) -> np.ndarray:
         eye = np.eye(3, dtype=int)
         trans = [t for W, t in zip(sym["rotations"], sym["translations"], strict=True)
                  if np.array_equal(W, eye)]
-    gens = [np.eye(3)] + [np.array(t) % 1.0 for t in trans]
-    # rational generators with a common denominator D
-    fr = [[Fraction(float(x)).limit_denominator(48) for x in np.atleast_1d(g).ravel()] for g in gens]
-    den = 1
-    for row in fr:
-        for f in row:
-            den = den * f.denominator // math.gcd(den, f.denominator)
-    rows = []
-    for g in gens:
-        g = np.atleast_2d(g)
-        for r in g:
-            rows.append(np.rint(np.array(r) * den).astype(np.int64))
-    basis = _integer_row_basis(np.array(rows, dtype=np.int64))
+    gens = np.vstack([np.eye(3)] + [np.asarray(t, dtype=float) % 1.0 for t in trans])
+    # rational generators (denominators up to 48, the closest fractions) with a common denominator
+    den = math.lcm(*(int(q) for q in np.unique(closest_denominators(gens, 48))))
+    rows = np.rint(gens * den).astype(np.int64)
+    basis = _integer_row_basis(rows)
     out = (basis / den) @ cell
     if len(_TL_CACHE) > 64:
         _TL_CACHE.clear()
@@ -575,15 +577,19 @@ def _pure_translations(cell: np.ndarray, frac: np.ndarray, numbers: np.ndarray, 
     rare = species[np.argmin(counts)]
     idx = np.nonzero(numbers == rare)[0]
     same = numbers[:, None] == numbers[None, :]
+    cands = (frac[idx[1:]] - frac[idx[0]]) % 1.0  # (k, 3)
+    n = len(frac)
     out = []
-    for j in idx[1:]:
-        t = (frac[j] - frac[idx[0]]) % 1.0
-        d = (frac + t)[:, None, :] - frac[None, :, :]
+    # candidates in blocks of about 10^5 atom pairs: (block, n, n, 3) differences at once
+    block = max(1, 100_000 // max(1, n * n))
+    for s in range(0, len(cands), block):
+        t = cands[s:s + block]
+        d = (frac[None, :, :] + t[:, None, :])[:, :, None, :] - frac[None, None, :, :]
         d -= np.rint(d)
-        dist = np.linalg.norm(d @ cell, axis=2)
-        dist = np.where(same, dist, np.inf)
-        if np.all(dist.min(axis=1) <= tol):
-            out.append(t)
+        dist = np.linalg.norm(d @ cell, axis=3)
+        dist = np.where(same[None], dist, np.inf)
+        ok = np.all(dist.min(axis=2) <= tol, axis=1)
+        out.extend(t[ok])
     return out
 
 

@@ -49,6 +49,7 @@ from ase import Atoms
 from surfgeo.checks import positive_number
 from surfgeo.errors import StructureError
 from surfgeo.lattice import Lattice2D, gauss_reduce
+from surfgeo.lattice.rational import closest_denominators
 from surfgeo.slab.bulk import (
     CONTACT_FACTOR,
     bulk_crystal,
@@ -116,8 +117,8 @@ def parse_miller(miller, hexagonal: bool = False) -> tuple[tuple[int, int, int],
 
 def _unimodular_completion(m: list[int]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Integer vectors k1, k2 with m.k = 0 and u with m.u = 1 forming a unimodular basis."""
-    v = list(m)
-    V = np.eye(3, dtype=np.int64)
+    v = [int(x) for x in m]
+    cols = [[1, 0, 0], [0, 1, 0], [0, 0, 1]]  # columns of V (plain integers: a few dozen steps)
     while sum(1 for x in v if x != 0) > 1:
         nz = [i for i in range(3) if v[i] != 0]
         p = min(nz, key=lambda i: abs(v[i]))
@@ -126,15 +127,16 @@ def _unimodular_completion(m: list[int]) -> tuple[np.ndarray, np.ndarray, np.nda
                 continue
             q = v[j] // v[p]
             v[j] -= q * v[p]
-            V[:, j] -= q * V[:, p]
+            cols[j] = [a - q * b for a, b in zip(cols[j], cols[p], strict=True)]
     p = next(i for i in range(3) if v[i] != 0)
     if v[p] < 0:
-        V[:, p] *= -1
+        cols[p] = [-a for a in cols[p]]
         v[p] = -v[p]
     if v[p] != 1:  # pragma: no cover - m is coprime by construction
         raise StructureError("internal error: Miller indices in the primitive basis are not coprime.")
     others = [i for i in range(3) if i != p]
-    return V[:, others[0]].copy(), V[:, others[1]].copy(), V[:, p].copy()
+    return (np.array(cols[others[0]], dtype=np.int64), np.array(cols[others[1]], dtype=np.int64),
+            np.array(cols[p], dtype=np.int64))
 
 
 def _rational(x: float, limit: int = 48) -> Fraction:
@@ -248,41 +250,54 @@ def _as_bulk(bulk) -> Atoms:
     raise StructureError("the bulk crystal must be an ase.Atoms or an element symbol such as 'Pt'.")
 
 
-def _shortest_vectors_2d(A: np.ndarray, nmax: int = 2) -> np.ndarray:
-    r = range(-nmax, nmax + 1)
-    ij = np.array([(i, j) for i in r for j in r if (i, j) != (0, 0)], dtype=float)
-    return ij @ A
+#: Lattice coefficients (i, j), |i|, |j| <= 2, of the candidate vectors of a reduced 2D basis.
+_COMBOS2 = np.array([(i, j) for i in range(-2, 3) for j in range(-2, 3) if (i, j) != (0, 0)], dtype=float)
 
 
 def _choose_basis(k1: np.ndarray, k2: np.ndarray, n: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Reduced, right-handed (about n) basis of the plane lattice spanned by k1, k2 (3D vectors)."""
+    """Reduced, right-handed (about n) basis of the plane lattice spanned by k1, k2 (3D vectors).
+
+    a1 is a shortest lattice vector, a2 the shortest vector completing a right-handed basis
+    (the obtuse one where an obtuse and an acute one are equally short); among the shortest
+    a1 the one whose partner is shortest, then obtuse, then the largest bulk direction
+    (x, then y, then z) wins. The candidates are the lattice vectors with coefficients up to 2
+    in a Gauss-reduced basis (plain floats: a few dozen 2D vectors).
+    """
     e1 = k1 / np.linalg.norm(k1)
     e2 = np.array([n[1] * e1[2] - n[2] * e1[1], n[2] * e1[0] - n[0] * e1[2], n[0] * e1[1] - n[1] * e1[0]])
     E = np.array([e1, e2])  # 2D coordinates: v2 = E @ v
-    red, _ = gauss_reduce([E @ k1, E @ k2])
-    cands2 = _shortest_vectors_2d(red)
-    cands3 = cands2 @ E
-    lens = np.linalg.norm(cands2, axis=1)
-    lmin = lens.min()
-    short = cands3[lens <= lmin * (1 + 1e-6)]
+    red = gauss_reduce([E @ k1, E @ k2])[0]
+    cands = _COMBOS2 @ red
+    c2 = cands.tolist()
+    lens = np.linalg.norm(cands, axis=1).tolist()
+    lmin = min(lens)
     area = abs(float(red[0, 0] * red[1, 1] - red[0, 1] * red[1, 0]))
-    short2 = short @ E.T
-    cross = short2[:, 0, None] * cands2[None, :, 1] - short2[:, 1, None] * cands2[None, :, 0]
-    dots = short2 @ cands2.T
-    ok = np.abs(cross - area) <= 1e-6 * area
-    # partner of each candidate a1: shortest, then most obtuse
-    rank = np.round(lens, 6)[None, :] * 1e6 + np.round(dots, 6) / (1.0 + 4.0 * lmin * lmin)
-    score = np.where(ok, rank, np.inf)
-    j = np.argmin(score, axis=1)
-    rows = np.arange(len(short))
-    acute = dots[rows, j] > 1e-9 * lmin * lmin
-    unit = np.round(short / np.linalg.norm(short, axis=1)[:, None], 6)
-    # prefer the shortest partner, then an obtuse angle, then the largest direction (x, y, z)
-    order = np.lexsort((-unit[:, 2], -unit[:, 1], -unit[:, 0], acute, np.round(lens[j], 6)))
-    k = int(order[0])
-    best = (None, short[k], cands3[j[k]])
-    a1, a2 = best[1], best[2]
-    return a1, a2
+    scale = 1.0 + 4.0 * lmin * lmin
+    rank_len = [round(v, 6) * 1e6 for v in lens]
+    (e1x, e1y, e1z), (e2x, e2y, e2z) = E.tolist()
+    best_key, best = None, None
+    for s, (sx, sy) in enumerate(c2):
+        if lens[s] > lmin * (1 + 1e-6):
+            continue
+        # partner: right-handed, shortest, then most obtuse
+        jbest, rbest, dbest = 0, math.inf, sx * c2[0][0] + sy * c2[0][1]
+        for j, (x, y) in enumerate(c2):
+            if abs(sx * y - sy * x - area) > 1e-6 * area:
+                continue
+            d = sx * x + sy * y
+            r = rank_len[j] + round(d, 6) / scale
+            if r < rbest:
+                jbest, rbest, dbest = j, r, d
+        acute = dbest > 1e-9 * lmin * lmin
+        ln = lens[s]
+        u = (round((sx * e1x + sy * e2x) / ln, 6), round((sx * e1y + sy * e2y) / ln, 6),
+             round((sx * e1z + sy * e2z) / ln, 6))
+        key = (round(lens[jbest], 6), acute, -u[0], -u[1], -u[2], s)
+        if best_key is None or key < best_key:
+            best_key, best = key, (s, jbest)
+    s, j = best
+    cands3 = cands @ E  # one product for all (the same rounding as every other caller's)
+    return cands3[s], cands3[j]
 
 
 _OFFSETS = np.array(list(itertools.product((-1, 0, 1, 2), repeat=2)), dtype=float)
@@ -307,7 +322,7 @@ def _primitive_miller(bulk: Atoms, hkl) -> tuple[np.ndarray, list[int]]:
     # P_frac has small denominators: scale to integers once, then integer arithmetic
     key = P_frac.tobytes()
     if key not in _PI_CACHE:
-        D = math.lcm(*[_rational(x).denominator for x in P_frac.ravel()])
+        D = math.lcm(*(int(q) for q in np.unique(closest_denominators(P_frac, 48))))
         Pi = np.rint(P_frac * D).astype(np.int64)
         if np.any(np.abs(Pi - P_frac * D) > 1e-6):  # pragma: no cover - spglib translations are rational
             raise StructureError("internal error: the primitive cell is not a rational multiple of the cell.")
@@ -321,8 +336,13 @@ def _primitive_miller(bulk: Atoms, hkl) -> tuple[np.ndarray, list[int]]:
 
 
 def plane_lattice(bulk, hkl) -> np.ndarray:
-    """Reduced basis (2 rows, bulk Cartesian frame, Angstrom) of the lattice vectors in the
-    (hkl) planes of ``bulk`` (conventional three-index Miller indices)."""
+    """A Gauss-Lagrange reduced basis (2 rows, bulk Cartesian frame, Angstrom) of the lattice
+    vectors in the (hkl) planes of ``bulk`` (conventional three-index Miller indices).
+
+    The first row is a shortest vector of the plane lattice; every shortest vector is one of
+    +-a1, +-a2, +-(a1 + a2), +-(a1 - a2). (The orientation conventions of a slab cell, which
+    :func:`face_geometry` applies, are not needed here.)
+    """
     bulk = _as_bulk(bulk)
     C = np.asarray(bulk.cell[:], dtype=float)
     P, mi = _primitive_miller(bulk, hkl)
@@ -331,10 +351,14 @@ def plane_lattice(bulk, hkl) -> np.ndarray:
         G = np.array(hkl, dtype=float) @ np.linalg.inv(C).T
         n = G / np.linalg.norm(G)
         k1, k2, _ = _unimodular_completion(mi)
-        a1, a2 = _choose_basis(k1 @ P, k2 @ P, n)
+        K1, K2 = k1 @ P, k2 @ P
+        e1 = K1 / np.linalg.norm(K1)
+        e2 = np.array([n[1] * e1[2] - n[2] * e1[1], n[2] * e1[0] - n[0] * e1[2], n[0] * e1[1] - n[1] * e1[0]])
+        E = np.array([e1, e2])  # 2D coordinates in the plane: v2 = E @ v
+        red, _ = gauss_reduce([E @ K1, E @ K2])
         if len(_PLANE_CACHE) > 256:
             _PLANE_CACHE.clear()
-        _PLANE_CACHE[key] = np.array([a1, a2])
+        _PLANE_CACHE[key] = red @ E
     return _PLANE_CACHE[key].copy()
 
 
@@ -342,7 +366,7 @@ _PLANE_CACHE: dict[tuple, np.ndarray] = {}
 
 
 def clear_caches() -> None:
-    """Forget cached translation lattices, plane lattices and step decompositions.
+    """Forget cached translation lattices, plane lattices, step decompositions and microfacet lists.
 
     These pure results are kept between calls so that building several slabs of the same
     face (other thicknesses, sizes, terminations) does not redo them; only benchmarks of a
@@ -355,6 +379,8 @@ def clear_caches() -> None:
     _PI_CACHE.clear()
     _PLANE_CACHE.clear()
     _steps._decompose.cache_clear()
+    _steps._members_cached.cache_clear()
+    _steps._all_members_cached.cache_clear()
 
 
 def face_geometry(bulk, miller, layer_tol: float = LAYER_TOL) -> Face:
@@ -399,7 +425,7 @@ def face_geometry(bulk, miller, layer_tol: float = LAYER_TOL) -> Face:
 
     a1, a2 = _choose_basis(K1, K2, n)
     x = a1 / np.linalg.norm(a1)
-    y = np.cross(n, x)
+    y = np.array([n[1] * x[2] - n[2] * x[1], n[2] * x[0] - n[0] * x[2], n[0] * x[1] - n[1] * x[0]])
     R = np.array([x, y, n])
     A = np.array([[float(np.linalg.norm(a1)), 0.0], [float(a2 @ x), float(a2 @ y)]])
     u = R @ U
@@ -412,13 +438,16 @@ def face_geometry(bulk, miller, layer_tol: float = LAYER_TOL) -> Face:
     pos = (R @ bulk.positions.T).T
     F = pos @ np.linalg.inv(Bm)
     F -= np.floor(F)
-    step = 1e-4
-    key = np.rint(F / step).astype(np.int64) % int(round(1 / step))
-    table = np.column_stack([bulk.numbers, key])
-    _, first = np.unique(table, axis=0, return_index=True)
+    # one atom per (element, fractional position to 1e-4): the rows (Z, k1, k2, k3) as one integer
+    steps = 10_000
+    key = np.rint(F * steps).astype(np.int64) % steps
+    z = np.asarray(bulk.numbers, dtype=np.int64)
+    code = ((z * steps + key[:, 0]) * steps + key[:, 1]) * steps + key[:, 2]
+    _, first = np.unique(code, return_index=True)
     first = np.sort(first)
     F = F[first]
-    symbols = [bulk.get_chemical_symbols()[i] for i in first]
+    all_symbols = bulk.get_chemical_symbols()
+    symbols = [all_symbols[i] for i in first]
     vol_prim = abs(float(np.linalg.det(P)))
     expected = len(bulk) * vol_prim / abs(float(np.linalg.det(C)))
     if len(F) != round(expected):
@@ -639,6 +668,9 @@ def _rectangular_matrix(A: np.ndarray) -> np.ndarray:
 
 def _lattice_points(M: np.ndarray) -> np.ndarray:
     """The |det M| integer points (i, j) inside the cell M (rows) of the integer lattice."""
+    if M[0, 1] == 0 and M[1, 0] == 0 and M[0, 0] > 0 and M[1, 1] > 0:  # n1 x n2 repetitions
+        ii, jj = np.meshgrid(np.arange(M[0, 0]), np.arange(M[1, 1]), indexing="ij")
+        return np.column_stack([ii.ravel(), jj.ravel()])
     corners = np.array([[0, 0], M[0], M[1], M[0] + M[1]])
     lo, hi = corners.min(axis=0), corners.max(axis=0)
     ii, jj = np.meshgrid(np.arange(lo[0], hi[0] + 1), np.arange(lo[1], hi[1] + 1), indexing="ij")

@@ -50,6 +50,7 @@ from fractions import Fraction
 import numpy as np
 
 from surfgeo.errors import NotationError, StructureError
+from surfgeo.lattice.rational import closest_denominators
 
 #: Microfacet families (family Miller indices, shortest reciprocal vector) per structure, in
 #: order of preference as terrace.
@@ -106,6 +107,20 @@ def _metric(structure: str, c_over_a: float | None) -> np.ndarray:
     return Bi @ Bi.T
 
 
+def _metric_dot(Gm: np.ndarray):
+    """u . v in the metric ``Gm`` for short integer 3-vectors, in plain Python (no numpy call
+    per product: these are evaluated thousands of times on 3-vectors)."""
+    (g00, g01, g02), (g10, g11, g12), (g20, g21, g22) = np.asarray(Gm, dtype=float).tolist()
+
+    def dot(u, v) -> float:
+        u0, u1, u2 = (float(x) for x in u)
+        v0, v1, v2 = (float(x) for x in v)
+        return (u0 * (g00 * v0 + g01 * v1 + g02 * v2) + u1 * (g10 * v0 + g11 * v1 + g12 * v2)
+                + u2 * (g20 * v0 + g21 * v1 + g22 * v2))
+
+    return dot
+
+
 def _structure_key(structure: str) -> str:
     key = str(structure).strip().lower()
     if key not in FAMILIES:
@@ -134,14 +149,16 @@ def _to_three(miller, structure: str) -> tuple[int, int, int]:
 
 def _shortest_g(hkl, structure: str) -> np.ndarray:
     """The shortest reciprocal vector of the structure's atomic planes along hkl (integers)."""
-    h = np.array(hkl, dtype=int)
+    h0, h1, h2 = (int(v) for v in hkl)
+    double = False
     if structure == "fcc":
-        return h if np.all(h % 2 == 1) else 2 * h
-    if structure == "bcc":
-        return h if int(h.sum()) % 2 == 0 else 2 * h
-    if structure == "hcp" and (h[0] - h[1]) % 3 == 0 and h[2] % 2 == 1:
-        return 2 * h  # hcp structure factor: h - k = 3n with l odd vanishes
-    return h
+        double = not (h0 % 2 == 1 and h1 % 2 == 1 and h2 % 2 == 1)
+    elif structure == "bcc":
+        double = (h0 + h1 + h2) % 2 != 0
+    elif structure == "hcp":
+        double = (h0 - h1) % 3 == 0 and h2 % 2 == 1  # hcp structure factor: h - k = 3n with l odd vanishes
+    k = 2 if double else 1
+    return np.array([k * h0, k * h1, k * h2], dtype=int)
 
 
 def _is_multiple(r: np.ndarray, g: np.ndarray) -> int | None:
@@ -194,8 +211,13 @@ class StepDecomposition:
         G = sum(c * np.array(g) for c, _, g in self.terms)
         k = math.gcd(*[int(v) for v in G])
         own = _canonical(tuple(int(v) // k for v in G), self.structure)
+        # read the family form back (as miller_from_notation would, without the text round trip)
+        if self.kind == "stepped":
+            fam_terms = [(self.terms[0][0] + 1, self.terms[0][1]), (1, self.terms[1][1])]
+        else:
+            fam_terms = [(c, f) for c, f, _ in self.terms]
         try:
-            back = miller_from_notation(fam, self.structure)
+            back = _miller_from_terms(fam_terms, self.kind == "stepped", self.structure, fam)
         except NotationError:
             back = None
         return fam if back == own else self.explicit
@@ -235,12 +257,19 @@ def _family_label(structure: str, g) -> str:
     return _indices(g)  # pragma: no cover
 
 
-def _all_members(structure: str):
+@functools.lru_cache(maxsize=16)
+def _all_members_cached(structure: str) -> tuple:
     out = []
     for rank, (fam, g) in enumerate(FAMILIES[structure]):
         for m in _members(structure, g):
-            out.append((rank, fam, np.array(m)))
-    return out
+            v = np.array(m)
+            v.flags.writeable = False
+            out.append((rank, fam, v))
+    return tuple(out)
+
+
+def _all_members(structure: str) -> list:
+    return list(_all_members_cached(structure))
 
 
 def decompose(miller, structure: str, c_over_a: float | None = None) -> StepDecomposition:
@@ -272,7 +301,7 @@ def _decompose(hkl: tuple[int, int, int], structure: str, c_over_a: float | None
     GG = float(G @ Gm @ G)
     norm2 = np.diag(D)
 
-    def dot(u, v):
+    def dot(u, v):  # numpy's rounding: the kinked search below breaks exact ties by it
         return float(np.asarray(u, float) @ Gm @ np.asarray(v, float))
 
     par_G = np.abs(dG**2 - norm2 * GG) < 1e-9 * norm2 * GG
@@ -418,6 +447,12 @@ def miller_from_notation(notation: str, structure: str = "fcc", canonical: bool 
         except StructureError as exc:
             raise NotationError(f"in the step notation {notation!r}: {exc}") from None
         terms.append((coef, hkl))
+    return _miller_from_terms(terms, stepped, structure, notation, canonical)
+
+
+def _miller_from_terms(terms: list[tuple[int, tuple[int, int, int]]], stepped: bool, structure: str,
+                       notation: str, canonical: bool = True) -> tuple[int, ...]:
+    """:func:`miller_from_notation` after parsing: (count, three-index microfacet) terms."""
     if stepped:
         if terms[1][0] != 1:
             raise NotationError(f"the step in {notation!r} takes no count; write n(hkl)×(h'k'l').")
@@ -428,29 +463,26 @@ def miller_from_notation(notation: str, structure: str = "fcc", canonical: bool 
         coefs = [terms[0][0] - 1, 1]
     else:
         coefs = [c for c, _ in terms]
-    Gm = _metric(structure, None)
-
-    def dot(u, v):
-        return float(np.asarray(u, float) @ Gm @ np.asarray(v, float))
+    dot = _metric_dot(_metric(structure, None))
 
     gs = []
     for _, hkl in terms:
-        g = _shortest_g(hkl, structure)
+        g = tuple(int(x) for x in _shortest_g(hkl, structure))
         fam_g = None
         for _fam, gg in FAMILIES[structure]:
-            if tuple(int(x) for x in g) in _members(structure, gg):
+            if g in _members_cached(structure, gg):
                 fam_g = gg
         if fam_g is None:
             raise NotationError(
                 f"({_indices(hkl)}) is not a low-index microfacet of {structure}; use "
                 + ", ".join(f"({_indices(f)})" for f, _ in FAMILIES[structure]) + "."
             )
-        gs.append((np.array(g), fam_g))
+        gs.append((g, fam_g))
     # choose family members: keep the first as written, then the first member (as written if
-    # possible) with acute angles to all chosen ones
+    # possible) with acute angles to all chosen ones (integer 3-tuples throughout)
     chosen = [gs[0][0]]
     for g, fam_g in gs[1:]:
-        options = [g] + [np.array(m) for m in _members(structure, fam_g)]
+        options = (g,) + _members_cached(structure, fam_g)
         pick = None
         for opt in options:
             if all(dot(opt, c) > 1e-9 and abs(dot(opt, c) ** 2 - dot(opt, opt) * dot(c, c)) > 1e-9
@@ -460,9 +492,9 @@ def miller_from_notation(notation: str, structure: str = "fcc", canonical: bool 
         if pick is None:
             raise NotationError(f"the microfacets in {notation!r} cannot form a stepped surface.")
         chosen.append(pick)
-    G = sum(c * g for c, g in zip(coefs, chosen, strict=True))
-    k = math.gcd(*[int(v) for v in G])
-    hkl = tuple(int(v) // k for v in G)
+    G = [sum(c * g[i] for c, g in zip(coefs, chosen, strict=True)) for i in range(3)]
+    k = math.gcd(*G)
+    hkl = tuple(v // k for v in G)
     if canonical:
         return _canonical(hkl, structure)
     if structure == "hcp":
@@ -481,13 +513,12 @@ def _structure_of(face) -> str | None:
 def _shortest_along(A: np.ndarray, d2: np.ndarray) -> np.ndarray:
     """Shortest lattice vector (rows A, 2D) parallel to the direction d2."""
     f = d2 @ np.linalg.inv(A)
-    scale = np.max(np.abs(f))
-    fr = [Fraction(float(x / scale)).limit_denominator(2000) for x in f]
-    den = math.lcm(*[q.denominator for q in fr])
-    ints = [int(q * den) for q in fr]
+    f = f / np.max(np.abs(f))
+    # the closest fractions with denominators up to 2000, on a common denominator
+    den = math.lcm(*(int(q) for q in closest_denominators(f, 2000)))
+    ints = [int(v) for v in np.rint(f * den)]
     g = math.gcd(*ints)
-    ints = [v // g for v in ints]
-    return np.array(ints, dtype=float) @ A
+    return np.array([v // g for v in ints], dtype=float) @ A
 
 
 def step_description(face, bulk=None) -> dict | None:
@@ -544,7 +575,7 @@ def step_description(face, bulk=None) -> dict | None:
     gt2 = (R @ gt)[:2]
     down = -gt2 / np.linalg.norm(gt2)
     # levels of the surface lattice vectors: g_t . a_i = number of terrace planes crossed
-    lev = np.rint(np.array([np.append(a, 0.0) @ R @ gt for a in A])).astype(int)
+    lev = np.rint(A @ (R[:2] @ gt)).astype(int)
     steps_per_cell = math.gcd(*[abs(int(v)) for v in lev]) or 1
 
     # terrace lattice: shortest vectors of the terrace plane and row spacing across the edge
@@ -558,21 +589,21 @@ def step_description(face, bulk=None) -> dict | None:
     r = area_atom_t / edge_len
     rows_geo = math.ceil(w * math.cos(theta) / r - 1e-6)
     # kinks: write the edge in a basis of close-packed terrace rows
-    edge_bulk = np.append(s_edge, 0.0) @ R
-    t_short = [c1 * tvecs[0] + c2 * tvecs[1] for c1, c2 in itertools.product((-1, 0, 1), repeat=2)
-               if (c1, c2) != (0, 0)]
-    t_short.sort(key=lambda v: (round(float(np.linalg.norm(v)), 6)))
-    lmin = float(np.linalg.norm(t_short[0]))
-    rows_dirs = [v for v in t_short if float(np.linalg.norm(v)) <= lmin * (1 + 1e-6)]
-    straight = any(
-        abs(abs(float(v @ edge_bulk)) - lmin * edge_len) < 1e-6 * lmin * edge_len for v in rows_dirs
-    )
+    edge_bulk = s_edge @ R[:2]
+    t_all = _UNIT_COMBOS @ tvecs  # the 8 vectors c1 t1 + c2 t2, |c_i| <= 1, of the reduced basis
+    t_len = np.linalg.norm(t_all, axis=1)
+    by_len = np.argsort(np.round(t_len, 6), kind="stable")
+    t_short, t_len = t_all[by_len], t_len[by_len]
+    lmin = float(t_len[0])
+    rows_dirs = t_short[t_len <= lmin * (1 + 1e-6)]
+    along = rows_dirs @ edge_bulk
+    straight = bool(np.any(np.abs(np.abs(along) - lmin * edge_len) < 1e-6 * lmin * edge_len))
     if straight:
         q = 0
     else:
-        t1 = max(rows_dirs, key=lambda v: float(v @ edge_bulk) / lmin)
-        others = [v for v in t_short if np.linalg.norm(_cross3(v, t1)) > 1e-6 * lmin ** 2]
-        t2 = min(others, key=lambda v: float(np.linalg.norm(v)))
+        t1 = rows_dirs[int(np.argmax(along))]
+        off_axis = np.linalg.norm(np.cross(t_short, t1), axis=1) > 1e-6 * lmin ** 2
+        t2 = t_short[off_axis][int(np.argmin(t_len[off_axis]))]
         coef = np.linalg.lstsq(np.array([t1, t2]).T, edge_bulk, rcond=None)[0]
         q = abs(int(round(float(coef[1]))))
     return {
@@ -595,6 +626,13 @@ def step_description(face, bulk=None) -> dict | None:
         "kink_spacing": (edge_len / q) if q else None,
         "kink_density": q / edge_len,
     }
+
+
+#: Coefficients (c1, c2) with |c_i| <= 1, not both 0: candidates for the shortest vectors of a
+#: Gauss-reduced 2D lattice basis.
+_UNIT_COMBOS = np.array(
+    [(c1, c2) for c1, c2 in itertools.product((-1, 0, 1), repeat=2) if (c1, c2) != (0, 0)], dtype=float
+)
 
 
 def _cross3(u, v) -> np.ndarray:
