@@ -415,3 +415,29 @@ def test_extinction_is_judged_against_the_specular_beam_when_it_is_not_listed():
     assert narrow.extinct.tolist() == [True]
     assert full.extinct[full.index_of("-1/2", 0)] and not full.extinct[full.index_of(0, 0)]
     assert narrow.intensity[0] <= 1e-20 * i00
+
+
+def test_incommensurate_film_kept_in_the_record_is_named():
+    # a regression: a film recorded but not built as atoms (incommensurate) left no trace in the
+    # slab's pattern; the note now gives its matrix, whose beams are the film's
+    from pathlib import Path
+
+    from surfgeo.slab.model import build_model
+
+    model = Path(__file__).resolve().parents[1] / "structures" / "pt111_graphene_incommensurate.toml"
+    slab = build_model(model)
+    p = slab_pattern(slab, 90.0)
+    note = next(n for n in p.notes if "not among the atoms" in n)
+    numbers = note.split("--matrix ")[1].split(" in this substrate basis")[0].split()
+    M = np.array([float(x) for x in numbers]).reshape(2, 2)
+    film = superstructure_pattern(p.lattice, M, 90.0)
+    over = np.array([s == "overlayer" for s in film.source])
+    gmin = np.min(np.linalg.norm(film.g[over], axis=1))
+    # Common practice, no source: a hexagonal lattice of constant a has |b| = 4 pi / (sqrt(3) a); the
+    # film of the model file has a = 2.46 A, rotated by 30 degrees against the substrate
+    assert gmin == pytest.approx(4 * math.pi / (math.sqrt(3) * 2.46), rel=1e-5)
+    first = film.g[over][np.isclose(np.linalg.norm(film.g[over], axis=1), gmin, rtol=1e-6)]
+    sub = p.lattice.reciprocal[0]
+    ang = np.degrees(np.arccos(np.clip(first @ sub / (np.linalg.norm(first, axis=1) * np.linalg.norm(sub)),
+                                       -1, 1)))
+    assert np.min(np.abs(((ang + 30) % 60) - 30)) == pytest.approx(30.0, abs=1e-3)

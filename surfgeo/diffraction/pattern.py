@@ -643,7 +643,7 @@ def slab_context(atoms, use_domains: bool = True, weights=None, symprec: float |
     pos = atoms.get_positions()
     num = atoms.get_atomic_numbers()
     doms = lattice_domains(lattice, M, use_domains)
-    notes = []
+    notes = _film_notes(info.extra.get("overlayers"), lattice)
     reps: list[list] = []
     n_struct = []
     if use_domains:
@@ -682,6 +682,32 @@ def slab_context(atoms, use_domains: bool = True, weights=None, symprec: float |
         w = w / w.sum()
     records = [DomainRecord(i, m, tuple(ops), float(w[i]), n_struct[i]) for i, (m, ops) in enumerate(doms)]
     return lattice, _exact_or_float(M), records, reps, notes
+
+
+def _film_notes(overlayers, lattice: Lattice2D) -> list[str]:
+    """Notes on films that the surface record holds but the atoms do not (incommensurate films).
+
+    Their beams are missing from a slab's pattern; the note gives the film's matrix in the
+    substrate basis, so that its beam positions can be had from :func:`superstructure_pattern`
+    (``surfgeo pattern --lattice ... --matrix ...``).
+    """
+    notes = []
+    for film in overlayers or []:
+        if not isinstance(film, dict) or film.get("atoms_added") or film.get("rotated_vectors") is None:
+            continue
+        try:
+            F = np.asarray(film["rotated_vectors"], dtype=float).reshape(2, 2)
+            M = F @ np.linalg.inv(lattice.vectors)
+        except (TypeError, ValueError, np.linalg.LinAlgError):
+            continue
+        text = " ".join(f"{x:.6g}" for x in M.ravel())
+        basis = f" ({basis_note(lattice)})" if basis_note(lattice) else ""
+        notes.append(
+            f"The {film.get('outcome', 'incommensurate')} film {film.get('name', '')!r} is in the surface "
+            f"record but not among the atoms, so its beams are not in this pattern; their positions: "
+            f"surfgeo pattern --lattice ... --matrix {text} in this substrate basis{basis}."
+        )
+    return notes
 
 
 def terrace_normal(step: dict) -> np.ndarray:
