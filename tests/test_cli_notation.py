@@ -169,3 +169,12 @@ def test_shared_superstructure_options_for_other_commands():
         resolve_superstructure(parser.parse_args([]), lat)
     with pytest.raises(NotationError):
         resolve_superstructure(parser.parse_args(["--wood", "(2x1)", "--matrix", "1", "0", "0", "1"]), lat)
+
+
+def test_debug_shows_the_traceback(tmp_path, capsys):
+    rc, out, err = run(["notation", "--lattice", "hex:2.77", "(2x)", "--debug"], capsys)
+    assert rc == 2
+    assert "Traceback" in err and "NotationError" in err
+    assert err.strip().splitlines()[-1].startswith("surfgeo notation: error: ")
+    rc, out, err = run(["notation", "--lattice", "hex:2.77", "(2x)"], capsys)
+    assert rc == 2 and "Traceback" not in err

@@ -138,3 +138,31 @@ def test_gauss_reduce_stops_at_a_half_integer_projection(monkeypatch):
     n1 = x1 * x1 + y1 * y1
     assert n1 <= x2 * x2 + y2 * y2 and abs(x1 * x2 + y1 * y2) <= 0.5 * n1 * (1 + 1e-9)
     assert abs(round(np.linalg.det(T))) == 1 and np.allclose(T @ B, red)
+
+
+def test_vectors_spec_and_any_two_vectors():
+    # Derived by hand: (2.77, 0) and (-1.385, 2.3989...) are the 120 degree hexagonal basis of
+    # a = 2.77; (1, 0), (0.5, 2) span a centred rectangular lattice (see above).
+    s3 = math.sqrt(3) / 2 * 2.77
+    lat = parse_lattice(f"vectors:2.77,0,-1.385,{s3!r}")
+    assert lat.kind() == "hexagonal" and lat.area == pytest.approx(parse_lattice("hex:2.77").area)
+    assert np.allclose(lat.vectors, parse_lattice("hex:2.77").vectors)
+    assert parse_lattice("vectors:1,0,0.5,2").kind() == "centred-rectangular"
+    # a left-handed pair is still a lattice: same kind and area
+    assert parse_lattice("vectors:0,1,1,0").kind() == "square"
+
+
+def test_classification_tolerance():
+    # Common practice, no source: a basis distorted by less than the tolerance keeps its kind,
+    # one distorted by more is classified by its lower symmetry.
+    # (the tolerances apply to the reduced cell: at 120.05 degrees the reduced cell is
+    # a1, a1 + a2 with lengths 0.08 % apart, so there the length tolerance decides)
+    near_hex = Lattice2D.from_vectors([2.77, 0.0], [2.77 * math.cos(math.radians(119.95)),
+                                                    2.77 * math.sin(math.radians(119.95))])
+    assert near_hex.kind(angle_tol=0.1) == "hexagonal"
+    assert near_hex.kind(angle_tol=0.01) == "centred-rectangular"  # |a1| = |a2| still
+    near_square = Lattice2D.from_vectors([2.55, 0.0], [0.0, 2.55 * 1.0005])
+    assert near_square.kind(length_tol=1e-3) == "square"
+    assert near_square.kind(length_tol=1e-5) == "rectangular"
+    assert len(near_square.point_group(length_tol=1e-3)) == 8
+    assert len(near_square.point_group(length_tol=1e-5)) == 4
