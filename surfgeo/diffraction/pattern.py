@@ -439,11 +439,16 @@ class Pattern:
                 b["screen_xy"] = px[i]
                 b["on_screen"] = vis[i]
             beams.append(b)
+        return self.json_frame(float(self.energy), self.theta_max, beams, screen)
+
+    def json_frame(self, energy_eV, theta_max: float, beams: list, screen=None) -> dict:
+        """The JSON object around ``beams``: energy, incidence, basis, acceptance, domains, notes,
+        source, basis note and screen (shared by single patterns and sweeps)."""
         out = {
-            "energy_eV": float(self.energy),
+            "energy_eV": energy_eV,
             "incidence_deg": [float(self.incidence[0]), float(self.incidence[1])],
             "basis": {"a1": self.lattice.a1.tolist(), "a2": self.lattice.a2.tolist()},
-            "theta_max_deg": float(self.theta_max),
+            "theta_max_deg": float(theta_max),
             "domains": [d.to_dict() for d in self.domain_records],
             "beams": beams,
             "notes": list(self.notes),

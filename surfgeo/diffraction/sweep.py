@@ -29,7 +29,6 @@ from surfgeo.diffraction.pattern import (
     terrace_lattice,
 )
 from surfgeo.errors import InputError
-from surfgeo.lattice import basis_note
 
 #: Energies per block of the intensity calculation (one progress step each).
 BLOCK = 16
@@ -157,22 +156,7 @@ class PatternSweep:
                 ]
                 b["on_screen"] = [bool(v) for v in vis[:, j]]
             beams.append(b)
-        out = {
-            "energy_eV": [float(e) for e in self.energies],
-            "incidence_deg": [float(v) for v in base.incidence],
-            "basis": {"a1": base.lattice.a1.tolist(), "a2": base.lattice.a2.tolist()},
-            "theta_max_deg": self.theta_max,
-            "domains": [d.to_dict() for d in base.domain_records],
-            "beams": beams,
-            "notes": list(base.notes),
-        }
-        if base.description:
-            out["source"] = base.description
-        if basis_note(base.lattice):
-            out["basis_note"] = basis_note(base.lattice)
-        if screen is not None:
-            out["screen"] = screen.to_dict()
-        return out
+        return base.json_frame([float(e) for e in self.energies], self.theta_max, beams, screen)
 
 
 def pattern_sweep(

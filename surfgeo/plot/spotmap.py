@@ -215,8 +215,8 @@ def acceptance_edge(energy: float, theta_max: float, incidence_xy, n: int = 721)
     return kp
 
 
-def draw_kspace(ax, pattern) -> None:
-    """Spot map in parallel momentum (1/Angstrom) on ``ax``."""
+def _kspace_frame(ax, pattern) -> None:
+    """Background, emergence circle, screen edge, incident beam, limits and labels of a k-space panel."""
     from matplotlib.patches import Circle
 
     from surfgeo.diffraction.electron import incident_k_parallel, wavenumber
@@ -229,9 +229,6 @@ def draw_kspace(ax, pattern) -> None:
         edge = acceptance_edge(pattern.energy, pattern.theta_max, pattern.incidence_xy)
         ax.plot(edge[:, 0], edge[:, 1], ls=":", lw=0.8, color="#9a8c98", zorder=1)
     ax.plot([kin[0]], [kin[1]], marker="+", color="#9a8c98", ms=10, zorder=2)
-    markers, colours, sizes, hollow = _style(pattern)
-    _scatter(ax, pattern.k_parallel, pattern, markers, colours, sizes, hollow, edge_dark=False)
-    _annotate(ax, pattern.k_parallel, pattern, "#4a4e69")
     lim = k * 1.08
     ax.set_xlim(-lim, lim)
     ax.set_ylim(-lim, lim)
@@ -242,26 +239,41 @@ def draw_kspace(ax, pattern) -> None:
     ax.set_title(f"parallel momentum (dashed: |k$_\\parallel$| = k{dotted})", fontsize=9)
 
 
-def draw_screen(ax, pattern, screen, annotate: bool = True) -> None:
-    """Spot map on the screen model (pixels, y down) on ``ax``."""
-    from matplotlib.patches import Polygon
-
+def _screen_frame(ax, screen, axis_labels: bool = True) -> None:
+    """Background, acceptance rim, gun and holder shadow, limits (y down) and labels of a screen panel."""
     ax.set_facecolor(SCREEN_BACKGROUND)
     rim = screen.rim()
-    ax.add_patch(Polygon(rim[np.isfinite(rim[:, 0])], closed=True, fill=False, ec="#e5e5e5", lw=0.8, ls="--"))
+    ax.plot(rim[:, 0], rim[:, 1], ls="--", lw=0.8, color="#e5e5e5", zorder=1)
     _draw_shadow(ax, screen)
+    ax.set_xlim(-0.5, screen.width - 0.5)
+    ax.set_ylim(screen.height - 0.5, -0.5)
+    ax.set_aspect("equal")
+    if axis_labels:
+        ax.set_xlabel("x (px)")
+        ax.set_ylabel("y (px)")
+        ax.set_title(f"{screen.kind} screen, acceptance {screen.acceptance_deg:g}\u00b0", fontsize=9)
+    else:
+        ax.set_xticks([])
+        ax.set_yticks([])
+
+
+def draw_kspace(ax, pattern) -> None:
+    """Spot map in parallel momentum (1/Angstrom) on ``ax``."""
+    _kspace_frame(ax, pattern)
+    markers, colours, sizes, hollow = _style(pattern)
+    _scatter(ax, pattern.k_parallel, pattern, markers, colours, sizes, hollow, edge_dark=False)
+    _annotate(ax, pattern.k_parallel, pattern, "#4a4e69")
+
+
+def draw_screen(ax, pattern, screen, annotate: bool = True) -> None:
+    """Spot map on the screen model (pixels, y down) on ``ax``."""
+    _screen_frame(ax, screen)
     px, vis = pattern.screen_positions(screen)
     px = np.where(vis[:, None], px, np.nan)
     markers, colours, sizes, hollow = _style(pattern, on_screen=True)
     _scatter(ax, px, pattern, markers, colours, sizes, hollow, edge_dark=False)
     if annotate:
         _annotate(ax, px, pattern, "#e5e5e5")
-    ax.set_xlim(-0.5, screen.width - 0.5)
-    ax.set_ylim(screen.height - 0.5, -0.5)
-    ax.set_aspect("equal")
-    ax.set_xlabel("x (px)")
-    ax.set_ylabel("y (px)")
-    ax.set_title(f"{screen.kind} screen, acceptance {screen.acceptance_deg:g}\u00b0", fontsize=9)
 
 
 def _draw_shadow(ax, screen) -> None:
@@ -330,10 +342,7 @@ def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
     e = sweep.energies
     fig = figure(figsize=(7.6, 6.4))
     ax = fig.add_subplot(1, 1, 1)
-    ax.set_facecolor(SCREEN_BACKGROUND)
-    rim = screen.rim()
-    ax.plot(rim[:, 0], rim[:, 1], ls="--", lw=0.8, color="#e5e5e5")
-    _draw_shadow(ax, screen)
+    _screen_frame(ax, screen)
     norm = Normalize(e.min(), e.max() if e.max() > e.min() else e.min() + 1)
     cmap = colormaps["plasma"]
     # label the lowest orders only, so that the figure stays readable
@@ -368,11 +377,6 @@ def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
                 text, p[last], xytext=(3, 3), textcoords="offset points", fontsize=5.5, color="#e5e5e5"
             )
     fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, label="energy (eV)", shrink=0.8)
-    ax.set_xlim(-0.5, screen.width - 0.5)
-    ax.set_ylim(screen.height - 0.5, -0.5)
-    ax.set_aspect("equal")
-    ax.set_xlabel("x (px)")
-    ax.set_ylabel("y (px)")
     where = _title(sweep.base).split(", ", 1)[1]
     ax.set_title(
         f"Spot trajectories {e.min():g}\u2013{e.max():g} eV ({where})\n"
@@ -404,15 +408,7 @@ def animate_sweep(
     inten = sweep.intensity
     fig = figure(figsize=(5.4, 5.6))
     ax = fig.add_subplot(1, 1, 1)
-    ax.set_facecolor(SCREEN_BACKGROUND)
-    rim = screen.rim()
-    ax.plot(rim[:, 0], rim[:, 1], ls="--", lw=0.8, color="#e5e5e5")
-    _draw_shadow(ax, screen)
-    ax.set_xlim(-0.5, screen.width - 0.5)
-    ax.set_ylim(screen.height - 0.5, -0.5)
-    ax.set_aspect("equal")
-    ax.set_xticks([])
-    ax.set_yticks([])
+    _screen_frame(ax, screen, axis_labels=False)
     nd = len(base.domain_records)
     colours = []
     for j, i in enumerate(sweep.index):
@@ -573,10 +569,6 @@ def plot_comparison(comp, path, screen=None, force: bool = False, view: str = "b
     names : (str, str), optional
         File names of the relaxed and the ideal structure, for the title.
     """
-    from matplotlib.patches import Circle
-
-    from surfgeo.diffraction.electron import incident_k_parallel, wavenumber
-
     rel = comp.relaxed
     panels = (
         ["kspace", "screen"]
@@ -588,35 +580,12 @@ def plot_comparison(comp, path, screen=None, force: bool = False, view: str = "b
                                                                            + [0.85]})[0]
     for ax, kind in zip(axes, panels, strict=False):
         if kind == "kspace":
-            ax.set_facecolor(KSPACE_BACKGROUND)
-            k = wavenumber(rel.energy)
-            kin = incident_k_parallel(rel.energy, rel.incidence_xy)
-            ax.add_patch(Circle((0, 0), k, fill=False, ls="--", lw=0.8, ec="#9a8c98", zorder=1))
-            ax.plot([kin[0]], [kin[1]], marker="+", color="#9a8c98", ms=10, zorder=2)
+            _kspace_frame(ax, rel)
             _split_spots(ax, rel.k_parallel, comp, on_screen=False)
-            lim = k * 1.08
-            ax.set_xlim(-lim, lim)
-            ax.set_ylim(-lim, lim)
-            ax.set_aspect("equal")
-            ax.set_xlabel("k$_x$ (1/\u00c5)")
-            ax.set_ylabel("k$_y$ (1/\u00c5)")
-            ax.set_title("parallel momentum (dashed: |k$_\\parallel$| = k)", fontsize=9)
         else:
-            from matplotlib.patches import Polygon
-
-            ax.set_facecolor(SCREEN_BACKGROUND)
-            rim = screen.rim()
-            ax.add_patch(Polygon(rim[np.isfinite(rim[:, 0])], closed=True, fill=False, ec="#e5e5e5", lw=0.8,
-                                 ls="--"))
-            _draw_shadow(ax, screen)
+            _screen_frame(ax, screen)
             px, vis = rel.screen_positions(screen)
             _split_spots(ax, np.where(vis[:, None], px, np.nan), comp, on_screen=True)
-            ax.set_xlim(-0.5, screen.width - 0.5)
-            ax.set_ylim(screen.height - 0.5, -0.5)
-            ax.set_aspect("equal")
-            ax.set_xlabel("x (px)")
-            ax.set_ylabel("y (px)")
-            ax.set_title(f"{screen.kind} screen, acceptance {screen.acceptance_deg:g}\u00b0", fontsize=9)
     _draw_changes(axes[-1], comp, top)
     fig.legend(handles=_comparison_legend(), loc="lower center", ncol=3, fontsize=8, frameon=False,
                bbox_to_anchor=(0.5, 0.02))

@@ -127,16 +127,7 @@ class ScreenGeometry:
     )
 
     def __post_init__(self) -> None:
-        for name in (
-            "centre_x",
-            "centre_y",
-            "scale",
-            "rotation_deg",
-            "stretch",
-            "stretch_deg",
-            "acceptance_deg",
-            "shadow_radius",
-        ):
+        for name in (*ScreenGeometry.param_names, "acceptance_deg", "shadow_radius"):
             v = getattr(self, name)
             if (
                 isinstance(v, bool)
