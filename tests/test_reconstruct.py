@@ -108,6 +108,31 @@ def test_missing_row_1x2_fcc110_is_p2mm():
     assert sites_are_stepped(s3)
 
 
+def test_missing_row_relaxes_and_shifts_the_remaining_rows():
+    # The relaxation of the rows that remain is part of the published missing-row models; here
+    # the applied values are the check (Source: the parameters given, against the unreconstructed
+    # (1x3) supercell of the same slab).
+    slab = fcc110("Pt", (1, 1, 6), vacuum=8.0)
+    ref = make_supercell(slab, [[3, 0], [0, 1]])  # ASE fcc110: close-packed rows along a2
+    s = missing_row(slab, period=3, remove=[[0, 1], [0]], relax=[-0.1, 0.05],
+                    shifts=[(2, 1, 0.07, -0.02)])
+    assert _last(s)["matrix"] == [[3, 0], [0, 1]]
+    z_ref = {round(float(z), 6) for z in ref.positions[:, 2]}
+    top1, top2, top3 = (sorted(z_ref, reverse=True)[k] for k in range(3))
+    z = s.positions[:, 2]
+    # layer 1 keeps one of its three rows, lowered by 0.1 A
+    assert np.sum(np.isclose(z, top1 - 0.1)) == 1
+    # layer 2 keeps two rows raised by 0.05 A; row 1 of them also moved by (0.07, -0.02)
+    assert np.sum(np.isclose(z, top2 + 0.05)) == 1 and np.sum(np.isclose(z, top2 + 0.05 - 0.02)) == 1
+    # deeper layers are untouched
+    assert np.sum(np.isclose(z, top3)) == 3
+    moved = np.nonzero(np.isclose(z, top2 + 0.03))[0][0]
+    lateral = s.positions[moved, :2] - ref.positions[:, :2]
+    f = lateral @ np.linalg.inv(s.cell[:2, :2])
+    d = np.linalg.norm((f - np.rint(f)) @ s.cell[:2, :2], axis=1)
+    assert d.min() == pytest.approx(0.07, abs=1e-9)
+
+
 def sites_are_stepped(s):
     return find_sites(s).mode == "open"
 
