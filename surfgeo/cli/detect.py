@@ -37,16 +37,16 @@ examples:
 
 
 def register(subparsers, common: argparse.ArgumentParser) -> None:
-    from surfgeo.cli._common import add_output_options
+    from surfgeo.cli._common import add_command, add_output_options
 
-    p = subparsers.add_parser(
+    p = add_command(
+        subparsers,
+        common,
         "detect",
-        parents=[common],
         help="find the spots of a LEED image",
         description="Find the spots of a LEED image: sub-pixel positions, integrated intensities, "
         "widths, signal-to-noise ratios and positional uncertainties.",
         epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("image", metavar="IMAGE", help="PNG or TIFF image of the screen")
     p.add_argument("-o", "--output", metavar="FILE",

@@ -9,6 +9,8 @@ import sys
 import numpy as np
 
 from surfgeo.cli._common import (
+    add_command,
+    add_frame_option,
     add_lattice_option,
     add_output_options,
     add_superstructure_options,
@@ -80,15 +82,15 @@ examples:
 def register(subparsers, common: argparse.ArgumentParser) -> None:
     from surfgeo.screen.spec import SCREEN_HELP
 
-    p = subparsers.add_parser(
+    p = add_command(
+        subparsers,
+        common,
         "pattern",
-        parents=[common],
         help="predicted spot pattern of a superstructure or a slab (positions, domains, intensities)",
         description="Predict which diffraction beams appear, where they land on the screen, which "
         "domains produce them and (with atoms) their kinematic intensities, at one energy or over "
         "an energy range.",
         epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument(
         "model", nargs="?", metavar="MODEL", help="surface model file or structure file (with atoms)"
@@ -157,9 +159,7 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         metavar="IDEAL",
         help="the ideal structure (model or structure file) to compare with; MODEL is then the relaxed one",
     )
-    g.add_argument(
-        "--frame", default="-1", metavar="N", help="frame of MODEL in a trajectory (default: last; 0 = first)"
-    )
+    add_frame_option(g, "MODEL (a trajectory)")
     g.add_argument(
         "--match",
         choices=("auto", "index", "distance"),
