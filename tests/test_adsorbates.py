@@ -200,6 +200,20 @@ def test_graphene_sqrt7_coincidence_and_incommensurate_record():
     assert np.degrees(math.atan2(Fr[0, 1], Fr[0, 0])) == pytest.approx(30.0)
 
 
+def test_coincidence_cell_too_large_to_build_is_reported_with_its_size():
+    slab = fcc111("Pt", (1, 1, 4), vacuum=10.0)
+    g = Film.honeycomb("C", 2.46)
+    for kwargs in ({"max_cells": 5}, {"build": False}):
+        s, rep = add_overlayer(slab, g, rotation=19.1066, height=3.3, max_strain=0.01, **kwargs)
+        # not built: the slab keeps its atoms and the film stays a separate record ...
+        assert rep.outcome == "incommensurate" and rep.atoms_added == 0 and len(s) == len(slab)
+        # ... but the coincidence cell it would need is reported with its size
+        # Common practice, no source: (sqrt7 x sqrt7)R19.1 of Pt(111) holds (3x3) graphene cells
+        assert rep.coincidence["substrate_cells"] == 7 and rep.coincidence["film_cells"] == 9
+        rec = s.info["surfgeo"]["overlayers"][-1]
+        assert rec["outcome"] == "incommensurate" and rec["coincidence"]["substrate_cells"] == 7
+
+
 def test_film_validation():
     with pytest.raises(StructureError, match="chemical symbol"):
         Film([[2, 0], [0, 2]], (("Qq", 0, 0),))
