@@ -101,6 +101,25 @@ def test_co_upright_and_tilted():
     assert u == pytest.approx([0, math.sin(math.radians(30)), math.cos(math.radians(30))], abs=1e-12)
 
 
+def test_no_upright_and_o2_lying_flat():
+    slab = make_supercell(fcc111("Pt", (1, 1, 3), vacuum=8.0), "p(2x2)")
+    top = slab.positions[:, 2].max()
+    s = add_adsorbate(slab, "NO", "fcc-hollow", height=1.5)
+    n, o = s.positions[len(slab):]
+    assert s.get_chemical_symbols()[len(slab):] == ["N", "O"]
+    # Source: ASE molecule('NO') bond length, kept; upright through N (the first atom, the anchor)
+    assert np.linalg.norm(o - n) == pytest.approx(molecule("NO").get_distance(0, 1), abs=1e-12)
+    assert n[2] - top == pytest.approx(1.5) and o[:2] == pytest.approx(n[:2], abs=1e-12) and o[2] > n[2]
+    flat = add_adsorbate(slab, "O2", "fcc-hollow", height=1.5, tilt=90, azimuth=30)
+    a, b = flat.positions[len(slab):]
+    # Source: ASE molecule('O2') bond length; tilted by 90 degrees the axis lies in the surface
+    # plane along the azimuth (Common practice, no source: tilt from the normal, azimuth from a1)
+    assert np.linalg.norm(b - a) == pytest.approx(molecule("O2").get_distance(0, 1), abs=1e-12)
+    assert a[2] == pytest.approx(b[2]) == pytest.approx(top + 1.5)
+    u = (b - a)[:2] / np.linalg.norm((b - a)[:2])
+    assert u == pytest.approx([math.cos(math.radians(30)), math.sin(math.radians(30))], abs=1e-12)
+
+
 def test_coverage_of_common_superstructures():
     slab = fcc111("Pt", (1, 1, 4), vacuum=8.0)
     p22 = add_adsorbate(make_supercell(slab, [[2, 0], [0, 2]]), "O", "fcc-hollow", bond_length=2.05)
