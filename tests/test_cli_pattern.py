@@ -50,7 +50,7 @@ def test_worked_example_json_keys(capsys):
     )
     assert status == 0, err
     data = json.loads(out)
-    # Source: issue 5, the JSON keys of the command
+    # The JSON keys specified for the command in issue 5 (a specification, not a physical fact)
     assert {"energy_eV", "basis", "beams"} <= set(data)
     assert data["energy_eV"] == 80.0
     assert set(data["basis"]) == {"a1", "a2"} and data["basis"]["a1"] == pytest.approx([2.77, 0.0])

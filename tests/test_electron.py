@@ -81,7 +81,9 @@ def test_exit_angle_of_first_order_beam():
 
 
 def test_onset_energy_normal_incidence_formula():
-    # Source: issue 5 / sources.md: E = hbar^2 |g|^2 / (2 m sin^2 theta_max), constants from scipy
+    # Source: grating equation sin(theta) = |g| / k at normal incidence with E = hbar^2 k^2 / 2m (Van Hove,
+    # Weinberg and Chan, Low-Energy Electron Diffraction, 1986): E = hbar^2 |g|^2 / (2 m sin^2 theta_max);
+    # constants from scipy.constants (CODATA)
     rng = np.random.default_rng(1)
     g = rng.normal(size=(50, 2)) * 3
     hbar2_2m = constants.hbar**2 / (2 * constants.m_e) / constants.e * 1e20

@@ -72,10 +72,13 @@ def test_c2x2_labels_and_orders():
 
 
 def test_theta_max_and_no_domains():
+    # Common practice, no source: at normal incidence the screen axis is the surface normal, so the
+    # acceptance keeps exactly the beams with exit angle theta <= theta_max
     p = superstructure_pattern(HEX, [[2, 1], [-1, 1]], 100.0, theta_max=30.0)
     assert np.all(p.theta <= 30.0 + 1e-9)
     full = superstructure_pattern(HEX, [[2, 1], [-1, 1]], 100.0)
     assert len(full) > len(p)
+    assert _labels(p) == {hk for hk, t in zip(full.hk, full.theta, strict=True) if t <= 30.0}
     one = superstructure_pattern(HEX, [[3, 1], [-1, 2]], 100.0, domains=False)
     assert len(one.domain_records) == 1 and all(d == (0,) for d in one.domains)
 
@@ -212,6 +215,8 @@ def test_two_domain_2x1_slab_intensities_and_weights():
     _tag(slab, [[2, 0], [0, 1]])
     p = slab_pattern(slab, 100.0, temperature=None)
     assert len(p.domain_records) == 2
+    # Common practice, no source: incoherent domain sum I = sum_d w_d I_d; the two (2x1) domains are
+    # related by the fourfold axis of fcc(100), so (1/2, 0) of one equals (0, 1/2) of the other
     i10 = _intensity_at(p, p.lattice.reciprocal[0] / 2)
     i01 = _intensity_at(p, p.lattice.reciprocal[1] / 2)
     assert i10 == pytest.approx(i01, rel=1e-9) and i10 > 0
@@ -303,7 +308,8 @@ def test_parse_energies():
 
 def test_sweep_positions_and_onsets():
     sw = pattern_sweep(np.arange(40.0, 201.0, 5.0), lattice=SQUARE, matrix=[[2, 0], [0, 1]], theta_max=50.0)
-    # Source: issue 5 / sources.md: onset E = hbar^2 |g|^2 / (2 m sin^2 theta_max) at normal incidence
+    # Source: grating equation sin(theta) = |g| / k with E = hbar^2 k^2 / 2m (Van Hove, Weinberg and Chan
+    # 1986): onset E = hbar^2 |g|^2 / (2 m sin^2 theta_max) at normal incidence
     gnorm = np.linalg.norm(sw.base.g[sw.index], axis=1)
     assert np.allclose(sw.onset, HBAR2_2M * gnorm**2 / math.sin(math.radians(50)) ** 2)
     assert np.all(sw.onset <= 200.0)
