@@ -447,3 +447,23 @@ def test_incommensurate_film_kept_in_the_record_is_named():
     ang = np.degrees(np.arccos(np.clip(first @ sub / (np.linalg.norm(first, axis=1) * np.linalg.norm(sub)),
                                        -1, 1)))
     assert np.min(np.abs(((ang + 30) % 60) - 30)) == pytest.approx(30.0, abs=1e-3)
+
+
+def test_azimuths_are_measured_from_a1():
+    # the incidence azimuth and the exit azimuths refer to a1, also when a1 is not along +x
+    c, s = math.cos(math.radians(30)), math.sin(math.radians(30))
+    rotated = Lattice2D.from_vectors([2.55 * c, 2.55 * s], [-2.55 * s, 2.55 * c])
+    p = superstructure_pattern(rotated, None, 100.0, (20.0, 0.0), theta_max=90.0)
+    q = superstructure_pattern(SQUARE, None, 100.0, (20.0, 0.0), theta_max=90.0)
+    a1 = rotated.a1 / np.linalg.norm(rotated.a1)
+    spec = p.index_of(0, 0)
+    # Common practice, no source (issue 5: azimuth measured from a1): the incident parallel momentum
+    # k sin(theta) points along a1, and the specular beam leaves at azimuth 0 from a1
+    assert p.k_parallel[spec] == pytest.approx(math.sqrt(100.0 / HBAR2_2M) * math.sin(math.radians(20)) * a1)
+    assert p.phi[spec] == pytest.approx(0.0, abs=1e-9) or p.phi[spec] == pytest.approx(360.0)
+    # the same physical pattern as for a1 along +x, turned by 30 degrees: same labels, angles
+    assert _labels(p) == _labels(q)
+    for hk in q.hk:
+        i, j = p.index_of(*hk), q.index_of(*hk)
+        assert p.theta[i] == pytest.approx(q.theta[j], abs=1e-9)
+        assert (p.phi[i] - q.phi[j] + 180.0) % 360.0 - 180.0 == pytest.approx(0.0, abs=1e-9)
