@@ -555,7 +555,7 @@ def translation_lattice(bulk: Atoms, symprec: float = 1e-3) -> np.ndarray:
         eye = np.eye(3, dtype=int)
         trans = [t for W, t in zip(sym["rotations"], sym["translations"], strict=True)
                  if np.array_equal(W, eye)]
-    gens = np.vstack([np.eye(3)] + [np.asarray(t, dtype=float) % 1.0 for t in trans])
+    gens = np.concatenate([np.eye(3), np.reshape(np.asarray(trans, dtype=float), (-1, 3)) % 1.0])
     # rational generators (denominators up to 48, the closest fractions) with a common denominator
     den = math.lcm(*(int(q) for q in np.unique(closest_denominators(gens, 48))))
     rows = np.rint(gens * den).astype(np.int64)
@@ -573,8 +573,9 @@ _TL_CACHE: dict[tuple, np.ndarray] = {}
 def _pure_translations(cell: np.ndarray, frac: np.ndarray, numbers: np.ndarray, tol: float) -> list:
     """Fractional translations t (not lattice vectors) with crystal + t = crystal."""
     frac = frac % 1.0
-    species, counts = np.unique(numbers, return_counts=True)
-    rare = species[np.argmin(counts)]
+    counts = np.bincount(numbers)
+    present = np.nonzero(counts)[0]
+    rare = present[np.argmin(counts[present])]  # the rarest element (the lowest Z on ties)
     idx = np.nonzero(numbers == rare)[0]
     same = numbers[:, None] == numbers[None, :]
     cands = (frac[idx[1:]] - frac[idx[0]]) % 1.0  # (k, 3)

@@ -381,6 +381,7 @@ def clear_caches() -> None:
     _steps._decompose.cache_clear()
     _steps._members_cached.cache_clear()
     _steps._all_members_cached.cache_clear()
+    _steps._ideal_metric_dot.cache_clear()
 
 
 def face_geometry(bulk, miller, layer_tol: float = LAYER_TOL) -> Face:

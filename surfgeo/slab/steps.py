@@ -67,25 +67,25 @@ STEP_STRUCTURES: tuple[str, ...] = tuple(FAMILIES)
 _CUBIC = ("fcc", "bcc", "sc")
 
 
+_SIGNS = tuple(itertools.product((1, -1), repeat=3))
+
+
 def _cubic_members(g) -> list[tuple[int, int, int]]:
-    out = set()
-    for perm in itertools.permutations(g):
-        for signs in itertools.product((1, -1), repeat=3):
-            out.add(tuple(int(s * v) for s, v in zip(signs, perm, strict=True)))
-    return sorted(out, reverse=True)
+    """Every signed permutation of g (the members of a cubic family), largest first."""
+    v = tuple(int(x) for x in g)
+    return sorted({(a * p[0], b * p[1], c * p[2]) for p in set(itertools.permutations(v))
+                   for a, b, c in _SIGNS}, reverse=True)
 
 
 def _hex_members(g) -> list[tuple[int, int, int]]:
-    h, k, l = g
+    """The members of a hexagonal family (h k l), three-index, largest first: cyclic
+    permutations of (h, k, i), swaps of the first two, and the signs of (h, k) and of l."""
+    h, k, l = (int(x) for x in g)
     i = -(h + k)
-    out = set()
-    trip = (h, k, i)
-    for perm in (trip, (trip[1], trip[2], trip[0]), (trip[2], trip[0], trip[1])):
-        for swap in (perm, (perm[1], perm[0], perm[2])):
-            for sgn in (1, -1):
-                for lsgn in (1, -1):
-                    out.add((sgn * swap[0], sgn * swap[1], lsgn * l))
-    return sorted(out, reverse=True)
+    pairs = [(h, k), (k, i), (i, h)]
+    pairs += [(y, x) for x, y in pairs]
+    return sorted({(sg * x, sg * y, ls * l) for x, y in pairs for sg in (1, -1) for ls in (1, -1)},
+                  reverse=True)
 
 
 @functools.lru_cache(maxsize=64)
@@ -119,6 +119,12 @@ def _metric_dot(Gm: np.ndarray):
                 + u2 * (g20 * v0 + g21 * v1 + g22 * v2))
 
     return dot
+
+
+@functools.lru_cache(maxsize=8)
+def _ideal_metric_dot(structure: str):
+    """:func:`_metric_dot` of the structure's metric with the ideal c/a (hcp)."""
+    return _metric_dot(_metric(structure, None))
 
 
 def _structure_key(structure: str) -> str:
@@ -463,7 +469,7 @@ def _miller_from_terms(terms: list[tuple[int, tuple[int, int, int]]], stepped: b
         coefs = [terms[0][0] - 1, 1]
     else:
         coefs = [c for c, _ in terms]
-    dot = _metric_dot(_metric(structure, None))
+    dot = _ideal_metric_dot(structure)
 
     gs = []
     for _, hkl in terms:
