@@ -216,3 +216,14 @@ def test_file_with_overlapping_atoms_is_refused(tmp_path):
     ase.io.write(path, cu)
     with pytest.raises(StructureError, match=r"the crystal in .*doubled.cif puts two Cu atoms 0.30 A apart"):
         bulk_crystal(str(path))
+
+
+def test_ase_atoms_bulk_with_overlapping_atoms_is_refused():
+    from surfgeo.slab.cut import surface_slab
+
+    # Common practice, no source: fcc nearest neighbours at a/sqrt2 (0.7 A -> 0.49 A); minimum
+    # half the sum of the covalent radii (Source: ase.data.covalent_radii, Cu 1.32 A)
+    with pytest.raises(StructureError, match=r"the bulk crystal Cu given as ase.Atoms puts two Cu atoms "
+                                             r"0.49 A apart, closer than the sane minimum of 1.32 A"):
+        surface_slab(ase_bulk("Cu", "fcc", a=0.7, cubic=True), (1, 1, 1), layers=3)
+    assert len(surface_slab(ase_bulk("Cu", "fcc", a=3.61, cubic=True), (1, 1, 1), layers=3)) == 3

@@ -489,10 +489,17 @@ def read_bulk(path: str | os.PathLike, a: float | None = None, c: float | None =
 
 
 def bulk_description(bulk: Atoms) -> dict:
-    """The ``info["surfgeo_bulk"]`` record of a bulk crystal, made up if ASE built it."""
+    """The ``info["surfgeo_bulk"]`` record of a bulk crystal, made up if ASE built it.
+
+    A crystal without the record (an ``ase.Atoms`` built elsewhere) is first checked for
+    overlapping atoms (:func:`check_distances`), as :func:`bulk_crystal` and
+    :func:`read_bulk` check theirs.
+    """
     rec = bulk.info.get(BULK_KEY)
     if rec is not None:
         return dict(rec)
+    check_distances(bulk, f"the bulk crystal {_formula_unit(bulk)} given as ase.Atoms",
+                    "check its cell and positions (Angstrom)")
     lengths = bulk.cell.lengths()
     sg, sg_symbol = _spacegroup(bulk)
     return {
