@@ -370,11 +370,14 @@ def test_too_few_spots(capsys, tmp_path):
     f = tmp_path / "two.csv"
     f.write_text("x,y\n100,120\n300,320\n")
     err = bad(["calibrate", f, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys, out)
-    assert "at least 3 measured spots" in err
+    assert "two.csv holds 2 spot(s)" in err and "at least 3" in err and "--calibration" not in err
+    err = bad(["index", f, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys, out)
+    assert "two.csv holds 2 spot(s)" in err and "--calibration" in err
     empty = tmp_path / "none.csv"
     empty.write_text("x,y\n")
-    err = bad(["index", empty, "--lattice", "hex:2.77", "--energy", "100", "--json", out], capsys, out)
-    assert "got 0" in err
+    for command in (["index"], ["calibrate"], ["match", "--wood", "(2x2)"]):
+        args = [command[0], empty, *command[1:], "--lattice", "hex:2.77", "--energy", "100", "--json", out]
+        assert "none.csv holds no spots" in bad(args, capsys, out)
 
 
 def test_spots_outside_the_stated_image(capsys, tmp_path):
@@ -395,6 +398,14 @@ def test_outputs_are_not_overwritten(sqrt3, capsys, tmp_path):
         capsys,
     )
     assert ".png or .svg" in err
+    same = tmp_path / "same.png"
+    err = bad(
+        ["calibrate", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120"]
+        + ["--json", same, "--plot", same],
+        capsys,
+        same,
+    )
+    assert "--json and --plot name the same file" in err
 
 
 def test_bad_options(sqrt3, capsys, tmp_path):

@@ -255,20 +255,32 @@ def _momentum_measurement(spots, source: str, energy: float | None) -> Measureme
     )
 
 
-def check_outputs(args, *names: str) -> None:
-    """Output files must differ, be writable (or --force), and figures end in .png/.svg."""
-    from surfgeo.errors import InputError
-    from surfgeo.io import check_writable
+def check_outputs(args) -> None:
+    """``--json`` and ``--plot`` must differ, be writable (or ``--force``), and the figure end
+    in .png or .svg (:func:`surfgeo.cli._common.check_outputs`)."""
+    from surfgeo.cli._common import check_outputs as check
 
-    outs = [getattr(args, n, None) for n in names]
-    outs = [o for o in outs if o and o != "-"]
-    if len(set(outs)) != len(outs):
-        raise InputError("the output options must name different files.")
-    for o in outs:
-        check_writable(o, args.force)
-    plot = getattr(args, "plot", None)
-    if plot and not plot.lower().endswith((".png", ".svg")):
-        raise InputError(f"--plot {plot!r} must end in .png or .svg.")
+    check({"--json": args.json, "--plot": args.plot}, args.force, figure="--plot")
+
+
+def require_spots(m: Measurement, calibrating: bool, saved_hint: bool = True) -> None:
+    """Refuse a spot list without spots, or, when the screen is to be calibrated from it, with
+    fewer than a calibration needs; the sentence names the file (and, with ``saved_hint``,
+    points to ``--calibration``)."""
+    from surfgeo.errors import InputError
+    from surfgeo.measure.calibrate import MIN_SPOTS
+
+    n = len(m.positions)
+    if n == 0:
+        raise InputError(
+            f"{m.source} holds no spots; give a list with one spot per line (columns x,y in px)."
+        )
+    if calibrating and not m.momentum and n < MIN_SPOTS:
+        raise InputError(
+            f"{m.source} holds {n} spot(s), but calibrating the screen needs at least {MIN_SPOTS} "
+            "(integer-order spots of the substrate); give more spots"
+            + (" or a saved --calibration." if saved_hint else ".")
+        )
 
 
 def unicode_ok(stream) -> bool:
@@ -336,7 +348,7 @@ def run(args: argparse.Namespace) -> int:
     from surfgeo.io import dump_json
     from surfgeo.measure.calibrate import SCALE_TOLERANCE, calibrate_series, calibration_candidates
 
-    check_outputs(args, "json", "plot")
+    check_outputs(args)
     contrast_kwargs(args)
     lattice = resolve_lattice(args.lattice)
     energies = [parse_energy(e) for e in args.energy]
@@ -353,6 +365,7 @@ def run(args: argparse.Namespace) -> int:
             raise InputError(
                 f"{m.source} lists momenta (kx, ky); a momentum-space list needs no calibration."
             )
+        require_spots(m, calibrating=True, saved_hint=False)
     screen = meas[0].screen
     notes = []
     if len(meas) == 1:

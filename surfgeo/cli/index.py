@@ -141,6 +141,7 @@ def run(args: argparse.Namespace) -> int:
         contrast_kwargs,
         load_measurement,
         parse_energy,
+        require_spots,
         write_report,
     )
     from surfgeo.errors import InputError
@@ -148,7 +149,7 @@ def run(args: argparse.Namespace) -> int:
     from surfgeo.measure.calibrate import load_calibration
     from surfgeo.measure.index import index_pattern
 
-    check_outputs(args, "json", "plot")
+    check_outputs(args)
     style = contrast_kwargs(args)
     lattice = resolve_lattice(args.lattice)
     energy = parse_energy(args.energy)
@@ -162,6 +163,7 @@ def run(args: argparse.Namespace) -> int:
         if m.momentum:
             raise InputError("a momentum-space spot list needs no --calibration.")
         cal = load_calibration(args.calibration)
+    require_spots(m, calibrating=cal is None)
     res = index_pattern(
         m.positions,
         lattice,

@@ -94,6 +94,7 @@ def run(args: argparse.Namespace) -> int:
         contrast_kwargs,
         load_measurement,
         parse_energy,
+        require_spots,
         write_report,
     )
     from surfgeo.errors import InputError
@@ -101,7 +102,7 @@ def run(args: argparse.Namespace) -> int:
     from surfgeo.measure.calibrate import calibrate, load_calibration
     from surfgeo.measure.match import match_spots
 
-    check_outputs(args, "json", "plot")
+    check_outputs(args)
     style = contrast_kwargs(args)
     lattice = resolve_lattice(args.lattice)
     energy = parse_energy(args.energy)
@@ -109,6 +110,7 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"--gate must be a positive number of pixels, got {args.gate}.")
     candidate = _candidate(args, lattice)
     m = load_measurement(args.input, args.screen, energy)
+    require_spots(m, calibrating=not (m.momentum or args.calibration))
     if m.momentum:
         cal = m.calibration
     elif args.calibration:
