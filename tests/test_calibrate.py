@@ -253,6 +253,29 @@ def test_calibration_round_trips_through_json(tmp_path):
     assert parse_screen(str(path)) == cal.screen
 
 
+def test_refit_keeps_the_integer_spot_count_apart(tmp_path):
+    # refine_calibration rests the screen on spots of every order; the record keeps the number of
+    # integer-order spots and says how many spots the refit used, and describes it in those words
+    lat = Lattice2D.hexagonal(2.77)
+    m = synthetic_measurement(3, lattice=lat, matrix=[[2, 1], [-1, 1]], energy=120.0)
+    cal = C.calibrate(m.spots, lat, m.energy, m.nominal_screen)
+    real = m.origin >= 0
+    labels = np.array([[float(h), float(k)] for h, k in m.truth_labels])[m.origin[real]]
+    ref = C.refine_calibration(cal, m.spots.positions[real], labels @ lat.reciprocal, m.energy)
+    assert ref.n_matched == cal.n_matched and ref.n_refit == int(real.sum()) > cal.n_matched
+    text = ref.describe()
+    assert f"{cal.n_matched} integer-order spots; refitted to all {ref.n_refit} matched spots" in text
+    assert f"{ref.n_refit} integer-order" not in ref.describe()
+    path = tmp_path / "refit.json"
+    path.write_text(json.dumps(ref.to_dict()))
+    back = C.load_calibration(path)
+    assert (back.n_matched, back.n_refit) == (ref.n_matched, ref.n_refit)
+    assert same_integer_pattern(ref.screen, m.screen, lat, m.energy, tol=1.0)
+    # a set (not fitted) energy offset is said, not hidden
+    assert "+1.50 eV (set, not fitted)" in C.Calibration(screen=cal.screen, energy_offset=1.5).describe()
+    assert "energy offset" not in C.Calibration(screen=cal.screen).describe()
+
+
 def test_bad_calibration_files(tmp_path):
     with pytest.raises(FileFormatError, match="does not exist"):
         C.load_calibration(tmp_path / "nope.json")

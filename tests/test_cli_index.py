@@ -428,3 +428,50 @@ def test_image_without_spots(capsys, tmp_path):
     write_bytes(blank, encode_image(np.full((128, 128), 100.0), "png", "uint8"))
     err = bad(["index", blank, "--lattice", "hex:2.77", "--energy", "100"], capsys)
     assert "found only 0 spot(s)" in err
+
+
+# --------------------------------------------------------------------------- regressions
+def test_refitted_calibration_does_not_call_every_matched_spot_integer_order(sqrt3, capsys):
+    # The indexing refits the screen to every spot its best candidate explains; the screen block
+    # once printed that count as "N integer-order spots" (29 at 72 eV where 6 integer spots exist).
+    d, m = sqrt3
+    code, text, err = run(
+        ["index", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120", "--screen", m.screen_spec(),
+         "--json", "-"],
+        capsys,
+    )
+    assert code == 0, err
+    data = json.loads(text)
+    cal, best = data["calibration"], data["candidates"][0]
+    integer_truth = sum(1 for lab, i in zip(m.truth_labels, m.truth_integer, strict=True) if i and any(lab))
+    assert 3 <= cal["integer_spots"] <= integer_truth < cal["refit_spots"]
+    assert cal["refit_spots"] >= best["matched"] - int((m.origin < 0).sum())
+    code, text, err = run(
+        ["index", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120", "--screen", m.screen_spec()],
+        capsys,
+    )
+    assert f"{cal['integer_spots']} integer-order spots; refitted to all {cal['refit_spots']} matched" in text
+    assert f"{cal['refit_spots']} integer-order spots" not in text
+
+
+def test_saved_energy_offset_is_shown(sqrt3, capsys, tmp_path):
+    # A calibration whose energy offset was set (e.g. refined on intensities by the demo) rather
+    # than fitted was applied without a word in the screen block.
+    d, m = sqrt3
+    cal = tmp_path / "screen.json"
+    code, _, err = run(
+        ["calibrate", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120"]
+        + ["--screen", m.screen_spec(), "--json", cal],
+        capsys,
+    )
+    assert code == 0, err
+    record = json.loads(cal.read_text())
+    record["energy_offset_eV"] = 1.5
+    cal.write_text(json.dumps(record))
+    code, text, err = run(
+        ["match", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120"]
+        + ["--wood", "(sqrt3 x sqrt3)R30", "--calibration", cal],
+        capsys,
+    )
+    assert code == 0, err
+    assert "energy offset +1.50 eV (set, not fitted)" in text and "(true = nominal +1.50 eV)" in text

@@ -337,7 +337,11 @@ def calibration_lines(cal, lattice, energies) -> list[str]:
         f"screen       {s.kind} model, {s.width}x{s.height} px, acceptance {s.acceptance_deg:g} deg",
         *(f"             {line}" for line in cal.describe().splitlines()),
         f"energies     {', '.join(f'{e:g}' for e in energies)} eV"
-        + (f" (true = nominal {cal.energy_offset:+.2f} eV)" if cal.fitted_energy_offset else ""),
+        + (
+            f" (true = nominal {cal.energy_offset:+.2f} eV)"
+            if cal.fitted_energy_offset or cal.energy_offset
+            else ""
+        ),
     ]
     return lines
 

@@ -775,6 +775,10 @@ class Calibration:
         One ``(image, spot, h, k, dx, dy)`` tuple per matched integer spot (residual in px).
     fitted_energy_offset : bool
         True when the energy offset was fitted.
+    n_refit : int
+        Spots of every order (integer and fractional) the screen was refitted to by
+        :func:`refine_calibration`, 0 when it rests on the integer-order spots alone; ``rms_px``
+        is then the RMS of that refit.
     """
 
     screen: ScreenGeometry
@@ -786,6 +790,7 @@ class Calibration:
     uncertainties: dict = field(default_factory=dict)
     matches: tuple = ()
     fitted_energy_offset: bool = False
+    n_refit: int = 0
 
     def energy(self, nominal_eV: float) -> float:
         """The true energy (eV) of a nominal beam energy: ``nominal + energy_offset``."""
@@ -817,6 +822,7 @@ class Calibration:
             "energies_eV": list(self.energies),
             "rms_px": self.rms_px,
             "integer_spots": self.n_matched,
+            "refit_spots": self.n_refit,
             "uncertainty": dict(self.uncertainties),
             "lattice": None if self.lattice is None else self.lattice.to_dict(),
             "matched": [
@@ -849,11 +855,20 @@ class Calibration:
                 if isinstance(s, CameraScreen)
                 else ""
             ),
-            f"{self.n_matched} integer-order spots, rms {self.rms_px:.2f} px"
+            (
+                f"{self.n_matched} integer-order spots; refitted to all {self.n_refit} matched spots "
+                f"(integer and fractional order), rms {self.rms_px:.2f} px"
+                if self.n_refit
+                else f"{self.n_matched} integer-order spots, rms {self.rms_px:.2f} px"
+            )
             + (
                 f", energy offset {self.energy_offset:+.2f}{pm('energy_offset', '.2f')} eV"
                 if self.fitted_energy_offset
-                else ""
+                else (
+                    f", energy offset {self.energy_offset:+.2f} eV (set, not fitted)"
+                    if self.energy_offset
+                    else ""
+                )
             ),
         ]
         return "\n".join(lines)
@@ -905,6 +920,7 @@ def calibration_from_dict(data: dict, source: str = "calibration") -> Calibratio
         uncertainties=unc,
         matches=matches,
         fitted_energy_offset=bool(data.get("energy_offset_fitted", False)),
+        n_refit=int(data.get("refit_spots") or 0),
     )
 
 
@@ -1366,8 +1382,8 @@ def refine_calibration(
     Returns
     -------
     Calibration
-        With ``n_matched = n`` and ``rms_px`` of the refit; the integer-spot ``matches`` of
-        the starting calibration are kept for the record.
+        With ``n_refit = n`` and ``rms_px`` of the refit; ``n_matched`` and the integer-spot
+        ``matches`` of the starting calibration are kept for the record.
     """
     P = _positions(positions)
     kp = np.asarray(k_parallel, dtype=float).reshape(-1, 2)
@@ -1395,10 +1411,11 @@ def refine_calibration(
         energies=calibration.energies,
         lattice=calibration.lattice,
         rms_px=rms,
-        n_matched=len(P),
+        n_matched=calibration.n_matched,
         uncertainties=_uncertainties(res, mirror, screen, n_extra, False),
         matches=calibration.matches,
         fitted_energy_offset=calibration.fitted_energy_offset,
+        n_refit=len(P),
     )
 
 
