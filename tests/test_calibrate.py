@@ -276,6 +276,17 @@ def test_refit_keeps_the_integer_spot_count_apart(tmp_path):
     assert "energy offset" not in C.Calibration(screen=cal.screen).describe()
 
 
+def test_unseen_integer_spots_flag_a_wrong_energy():
+    lat = Lattice2D.hexagonal(2.77)
+    m = synthetic_measurement(3, lattice=lat, matrix=[[2, 1], [-1, 1]], energy=120.0)
+    cal = C.calibrate(m.spots, lat, m.energy, m.nominal_screen)
+    n, unseen = C.unseen_integer_spots(cal, m.spots, lat, m.energy)
+    assert n >= 6 and unseen == 0
+    wrong = C.calibrate(m.spots, lat, 1500.0, m.nominal_screen)
+    n, unseen = C.unseen_integer_spots(wrong, m.spots, lat, 1500.0)
+    assert unseen > n - unseen
+
+
 def test_bad_calibration_files(tmp_path):
     with pytest.raises(FileFormatError, match="does not exist"):
         C.load_calibration(tmp_path / "nope.json")

@@ -454,6 +454,28 @@ def test_refitted_calibration_does_not_call_every_matched_spot_integer_order(sqr
     assert f"{cal['refit_spots']} integer-order spots" not in text
 
 
+def test_a_wrong_energy_or_lattice_is_pointed_out(sqrt3, capsys):
+    # 1500 eV instead of 120 eV: the spots still fit a dense integer lattice, but most of the
+    # integer-order spots that lattice puts on the screen are missing; both commands say so.
+    d, m = sqrt3
+    base = [d / "spots.csv", "--lattice", "hex:2.77", "--energy", "1500", "--screen", m.screen_spec()]
+    code, text, err = run(["calibrate", *base], capsys)
+    assert code == 0, err
+    assert "have no measured spot near them; check --energy and --lattice" in text
+    code, text, err = run(["index", *base, "--top", "2"], capsys)
+    assert code == 0, err
+    assert "spots on the screen that were not seen, more than" in text
+    # at the right energy neither note appears
+    code, text, err = run(["calibrate", *base[:3], "--energy", "120", *base[5:]], capsys)
+    assert code == 0 and "no measured spot near them" not in text
+    # a wrong lattice: the best answer, whatever its kind, leaves most spots unexplained
+    code, text, err = run(
+        ["index", base[0], "--lattice", "square:2.55", "--energy", "120", "--screen", m.screen_spec()], capsys
+    )
+    assert code == 0, err
+    assert "measured spots unexplained; check --lattice and --energy" in text
+
+
 def test_saved_energy_offset_is_shown(sqrt3, capsys, tmp_path):
     # A calibration whose energy offset was set (e.g. refined on intensities by the demo) rather
     # than fitted was applied without a word in the screen block.

@@ -350,7 +350,13 @@ def run(args: argparse.Namespace) -> int:
     from surfgeo.cli._common import resolve_lattice
     from surfgeo.errors import InputError
     from surfgeo.io import dump_json
-    from surfgeo.measure.calibrate import SCALE_TOLERANCE, calibrate_series, calibration_candidates
+    from surfgeo.measure.calibrate import (
+        MIN_SPOTS,
+        SCALE_TOLERANCE,
+        calibrate_series,
+        calibration_candidates,
+        unseen_integer_spots,
+    )
 
     check_outputs(args)
     contrast_kwargs(args)
@@ -383,6 +389,15 @@ def run(args: argparse.Namespace) -> int:
             )
     else:
         cal = calibrate_series([m.positions for m in meas], lattice, energies, screen, scale_tolerance=tol)
+    for m, e in zip(meas, energies, strict=True):
+        n_pred, n_unseen = unseen_integer_spots(cal, m.positions, lattice, e)
+        if n_unseen > max(n_pred - n_unseen, MIN_SPOTS):
+            notes.append(
+                f"{m.source}: {n_unseen} of the {n_pred} integer-order spots this calibration puts on the "
+                f"screen at {e:g} eV have no measured spot near them; check --energy and --lattice (at a "
+                "wrong energy or lattice constant the fractional-order spots can pass for the integer-order "
+                "spots of a denser lattice)."
+            )
     record = cal.to_dict()
     record["inputs"] = [m.source for m in meas]
     record["notes"] = notes

@@ -1352,6 +1352,50 @@ def calibration_candidates(
     return out
 
 
+def unseen_integer_spots(
+    calibration: Calibration, spots, lattice: Lattice2D, nominal_eV: float, margin_px: float = 3.0
+) -> tuple[int, int]:
+    """How many integer-order spots a calibration puts clearly on the screen, and how many of
+    those have no measured spot near them.
+
+    A calibration that rests on a few matched spots but predicts many more integer-order spots
+    that are not there is suspect: a wrong energy or lattice constant can make a pattern of
+    fractional-order spots look like the integer-order spots of a denser lattice.
+
+    Parameters
+    ----------
+    calibration : Calibration
+    spots : SpotList or array_like, shape (N, 2)
+        Measured positions, px.
+    lattice : Lattice2D
+        Substrate 1x1 lattice.
+    nominal_eV : float
+        Nominal energy of the image, eV (the calibration's energy offset is applied).
+    margin_px : float
+        Beams closer than this to an image edge or the gun's shadow are not counted.
+
+    Returns
+    -------
+    predicted, unseen : int
+        Integer-order beams other than (00) clearly on the screen, and those of them with no
+        measured spot within ``max(3 px, 3 rms)``.
+    """
+    P = _positions(spots)
+    E = calibration.energy(nominal_eV)
+    labels, kp = integer_beams(lattice, E, calibration.screen)
+    px = fast_pixels(calibration.screen, kp, E)
+    clear = on_screen(calibration.screen, px, kp, wavenumber(E), margin=margin_px)
+    clear &= np.any(labels != 0, axis=1)
+    if not clear.any():
+        return 0, 0
+    rms = calibration.rms_px if math.isfinite(calibration.rms_px) else 1.0
+    gate = max(3.0, 3.0 * rms)
+    if len(P) == 0:
+        return int(clear.sum()), int(clear.sum())
+    d, _ = cKDTree(P).query(px[clear], k=1)
+    return int(clear.sum()), int(np.sum(d > gate))
+
+
 def refine_calibration(
     calibration: Calibration,
     positions,
@@ -1460,5 +1504,6 @@ __all__ = [
     "on_screen",
     "pixels_from_normalised",
     "refine_calibration",
+    "unseen_integer_spots",
     "MIN_SPOTS",
 ]

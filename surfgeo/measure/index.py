@@ -737,7 +737,6 @@ def index_pattern(
         candidates.append(_make_candidate(ctx, table, grids, int(o), scores, matched, absent, rms, len(P)))
 
     # incommensurate overlayer
-    best_c = candidates[0]
     frac_unexpl = _fractional_unexplained(ctx, best[order[0]])
     if incommensurate is None:
         incommensurate = len(frac_unexpl) >= max(min_unexplained, 1) + int(round(expected_strays))
@@ -750,10 +749,16 @@ def index_pattern(
             notes.append(
                 "No incommensurate overlayer lattice explains the unexplained fractional-order spots."
             )
-    if best_c.unexplained > expected_strays + min_unexplained and candidates[0].kind == "commensurate":
+    top_c = candidates[0]
+    if top_c.unexplained > expected_strays + min_unexplained:
         notes.append(
-            f"The best candidate leaves {best_c.unexplained} measured spots unexplained; a larger --max-area "
-            "or a different lattice may be needed."
+            f"The best candidate leaves {top_c.unexplained} of {len(P)} measured spots unexplained; check "
+            "--lattice and --energy, or search larger cells (--max-area)."
+        )
+    if top_c.absent > max(top_c.matched, 5):
+        notes.append(
+            f"The best candidate predicts {top_c.absent} spots on the screen that were not seen, more than "
+            f"the {top_c.matched} it matches; check --energy, --lattice and the screen scale."
         )
 
     _group(ctx, table, grids, candidates, scores, matched, visible)
