@@ -314,3 +314,18 @@ def test_unseen_spots_on_glide_lines_are_pointed_out():
     res2 = IX.index_pattern(m2.spots, lat, 120.0, m2.nominal_screen, top=1)
     assert res2.candidates[0].wood == "(2×2)" and res2.candidates[0].absent >= 4
     assert not res2.candidates[0].notes
+
+
+def test_detail_and_counts_use_the_widened_acceptance():
+    # Measured spots beyond the calibration's acceptance widen the screen the candidates are
+    # scored on; the detailed assignment of the best candidate must use the same screen, or its
+    # matched spots out there count as not on the screen (and the figure leaves them out).
+    m = synthetic_measurement(3, lattice=Lattice2D.hexagonal(2.77), matrix=[[2, 1], [-1, 1]], energy=120.0)
+    narrow = m.screen.with_params(acceptance_deg=m.screen.acceptance_deg - 10.0)
+    res = IX.index_pattern(m.spots, m.lattice, m.energy, calibration=Calibration(screen=narrow, rms_px=1.0))
+    best, match = res.candidates[0], res.match
+    assert res.screen.acceptance_deg > narrow.acceptance_deg
+    assert any("beyond the acceptance" in n for n in res.notes)
+    assert len(match.pairs) == best.matched
+    assert np.all(match.predicted.visible[match.pairs[:, 1]])
+    assert positions_coincide(match.predicted.pixels[match.predicted.visible], m.truth_px, m.screen)

@@ -345,6 +345,9 @@ class IndexResult:
     sigma_px, gate_px : float
         Positional error and gate used.
     notes : list of str
+    screen : ScreenGeometry or None
+        The screen the predictions were made on: the calibrated one, with the acceptance
+        widened when measured spots lie beyond it (see :func:`index_pattern`).
     """
 
     calibration: Calibration
@@ -358,6 +361,7 @@ class IndexResult:
     gate_px: float
     n_spots: int
     notes: list = field(default_factory=list)
+    screen: ScreenGeometry | None = None
 
     def to_dict(self) -> dict:
         from surfgeo.lattice.superstructure import basis_note
@@ -772,6 +776,11 @@ def index_pattern(
     for c, wt in zip(candidates, wts / wts.sum(), strict=True):
         c.relative_probability = float(wt)
 
+    if ctx.screen.acceptance_deg > calibration.screen.acceptance_deg:
+        notes.append(
+            f"Measured spots lie beyond the acceptance of {calibration.screen.acceptance_deg:g} degrees; "
+            f"predictions reach {ctx.screen.acceptance_deg:.1f} degrees, out to the outermost spot."
+        )
     match = None
     if detail and candidates:
         match = _best_match(ctx, calibration, energy_eV, candidates[0])
@@ -787,6 +796,7 @@ def index_pattern(
         ctx.gate,
         len(P),
         notes,
+        ctx.screen,
     )
 
 
@@ -1163,7 +1173,14 @@ def _tell_by_energy(ctx: _Context, table: _Table, o1: int, o2: int) -> str:
 
 # =============================================================================== detail
 def _best_match(ctx: _Context, cal: Calibration, energy: float, c: IndexCandidate):
+    """The full assignment for a candidate, on the screen the candidates were scored on (the
+    acceptance widened to the outermost measured spot), so that its counts agree with the
+    candidate's."""
+    import dataclasses
+
     from surfgeo.measure.match import PredictedSpots, match_spots
+
+    cal = dataclasses.replace(cal, screen=ctx.screen)
 
     if c.kind == "commensurate":
         return match_spots(ctx.P, cal, energy, Superstructure(ctx.lattice, c.matrix), gate_px=ctx.gate)

@@ -296,12 +296,13 @@ def match_figure(match, image=None, screen=None, title: str | None = None, **kwa
 
 def index_figure(result, image=None, title: str | None = None, **kwargs):
     """Overlay of the best candidate of a :class:`surfgeo.measure.index.IndexResult`."""
+    screen = result.screen if result.screen is not None else result.calibration.screen
     if result.match is not None:
         c = result.candidates[0]
         return match_figure(
             result.match,
             image=image,
-            screen=result.calibration.screen,
+            screen=screen,
             title=title or f"best: {c.name()}, score {c.score:.1f}",
             **kwargs,
         )
@@ -311,7 +312,7 @@ def index_figure(result, image=None, title: str | None = None, **kwargs):
         None,
         c.predicted_px,
         predicted_labels=c.predicted_labels,
-        screen=result.calibration.screen,
+        screen=screen,
         title=title or f"best: {c.name()}",
         **kwargs,
     )
