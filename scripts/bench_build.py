@@ -14,8 +14,10 @@ Rows printed (and returned by ``main``):
   (goal: linear in the atom count, a few seconds).
 
 Timings are the median of several repetitions after one warm-up call (both sides). surfgeo
-keeps a few pure results between calls (spglib translation lattice, plane lattices, step
-decompositions); a third row per face clears them before every call (a first build).
+keeps a few pure results between calls (translation lattice of the bulk, plane lattices, step
+decompositions, microfacet member lists); a second row per face clears all of them before every
+call (``surfgeo.slab.cut.clear_caches``: a first build of the face in a fresh process, apart from
+imports).
 """
 
 from __future__ import annotations
@@ -59,8 +61,8 @@ def main(quick: bool = False) -> list[dict]:
             "ratio": t_ours / t_ase,
             "goal": "<= 1.5",
         })
-        # a first build of the face: cached pure results (spglib translations, plane lattices,
-        # step decompositions) cleared before every call
+        # a first build of the face: cached pure results (translation lattice, plane lattices,
+        # step decompositions, microfacet lists) cleared before every call
         def cold(h=hkl):
             clear_caches()
             surface_slab(pt, h, layers=20, size=(10, 10))
