@@ -100,7 +100,8 @@ def add_contrast_option(p: argparse.ArgumentParser) -> None:
         default=None,
         metavar="V",
         help="figure contrast: image percentiles LO HI shown black and white (default 2 99.8), and "
-        "optionally the width in px of the glow removed before (default 12; 0 shows the raw image)",
+        "optionally the half-width in px of the features kept when the background glow is removed "
+        "(default 12; 0 shows the raw image)",
     )
 
 

@@ -28,14 +28,25 @@ OUTLINE_COLOUR = "#c77dff"
 def _stretch(
     image: np.ndarray, contrast: tuple[float, float], power: float, flatten: float | None
 ) -> np.ndarray:
-    """Display values in [0, 1]: optional glow removal (minus a Gaussian blur of width
-    ``flatten`` px), then the percentiles ``contrast`` to black and white, then ``** power``."""
+    """Display values in [0, 1]: optional glow removal, then the percentiles ``contrast`` to black
+    and white, then ``** power``.
+
+    The glow is the grey opening of the image with a ``2 flatten + 1`` px square: the largest
+    background under the image that no feature narrower than that square pushes up. Unlike a
+    subtracted blur it leaves no dark halo around bright spots, which would hide the faint
+    fractional-order spots next to them.
+
+    References
+    ----------
+    J. Serra, *Image Analysis and Mathematical Morphology*, Academic Press (1982) (opening).
+    """
     data = np.asarray(image, dtype=float)
     if flatten:
         from scipy import ndimage as ndi
 
         filled = np.nan_to_num(data, nan=float(np.nanmedian(data)) if np.isfinite(data).any() else 0.0)
-        data = data - ndi.gaussian_filter(filled, flatten)
+        size = 2 * max(int(round(flatten)), 1) + 1
+        data = data - ndi.grey_opening(filled, size=(size, size))
     finite = data[np.isfinite(data)]
     if finite.size == 0:
         return np.zeros_like(data)
@@ -98,8 +109,9 @@ def overlay_figure(
     power : float
         Power stretch after the percentiles (0.5: square root).
     flatten : float or None
-        Remove the background glow before the stretch by subtracting a Gaussian blur of this
-        width (px); None shows the image as it is.
+        Remove the background glow before the stretch: subtract the grey opening of the image
+        with a square of ``2 flatten + 1`` px (spots narrower than that stand out, without dark
+        halos); None shows the image as it is.
     residual_scale : float
         Magnification of the residual arrows.
     max_labels : int
@@ -121,7 +133,7 @@ def overlay_figure(
             size = (screen.width, screen.height) if screen is not None else (512, 512)
         w, h = int(size[0]), int(size[1])
         img = None
-    fig = figure(figsize=(7.2, 7.2 * h / max(w, 1) + 0.4))
+    fig = figure(figsize=(9.4, 7.2 * h / max(w, 1) + 0.4))
     ax = fig.add_subplot(1, 1, 1)
     ax.set_facecolor(SCREEN_BACKGROUND)
     if img is not None:
@@ -264,8 +276,14 @@ def overlay_figure(
         ax.set_title(title, fontsize=9)
     handles, _ = ax.get_legend_handles_labels()
     if handles:
+        # beside the panel, so that it hides no spot; on the panel's colour, so that every marker shows
         leg = ax.legend(
-            loc="upper right", fontsize=7, framealpha=0.75, facecolor=SCREEN_BACKGROUND, labelcolor="white"
+            loc="upper left",
+            bbox_to_anchor=(1.01, 1.0),
+            fontsize=7,
+            framealpha=1.0,
+            facecolor=SCREEN_BACKGROUND,
+            labelcolor="white",
         )
         leg.get_frame().set_edgecolor(OUTLINE_COLOUR)
     return fig
