@@ -240,6 +240,8 @@ def test_incommensurate_overlayer_is_fitted_with_uncertainties():
     assert best.wood.startswith("(1.19") and "R7.0°" in best.wood
     assert best.unexplained <= 1
     assert positions_coincide(best.predicted_px, px[vis], true)
+    # the detail names the domains once (it read "(2 domains) (2 domains)")
+    assert res.match.summary_lines()[0].count("domains") == 1
 
 
 def test_commensurate_patterns_do_not_get_an_incommensurate_answer():

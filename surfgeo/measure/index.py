@@ -1196,7 +1196,7 @@ def _best_match(ctx: _Context, cal: Calibration, energy: float, c: IndexCandidat
         intensity=None,
         extinct=None,
         energy=ctx.E,
-        description=c.name(),
+        description=f"incommensurate overlayer {c.wood or _matrix_text(c.matrix)}",
     )
     return match_spots(ctx.P, cal, energy, None, predicted=pred, gate_px=ctx.gate)
 
