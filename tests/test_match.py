@@ -80,10 +80,11 @@ def test_predicted_spots_are_the_pattern_on_the_calibrated_screen():
 
 
 def test_report_with_the_true_calibration():
-    m = synthetic_measurement(21, max_area=6)
+    m = synthetic_measurement(21, max_area=6, strays=(2, 4))
     cal = Calibration(screen=m.screen, rms_px=1.0)
     res = match_spots(m.spots, cal, m.energy, m.domains[0], m.lattice, gate_px=4.5)
     strays = np.flatnonzero(m.origin < 0)
+    assert len(strays) >= 2  # the test below must see some
     # every stray spot, and nothing else, is unexplained
     assert set(res.unexplained.tolist()) == set(strays.tolist())
     assert len(res.pairs) == len(m.spots) - len(strays)
@@ -97,6 +98,11 @@ def test_report_with_the_true_calibration():
     assert {tuple(res.predicted.labels[j]) for j in res.absent} == not_seen
     assert all(v == "unknown" for v in res.verdicts)  # no atoms, no verdict
     assert res.rms_px < 2.0
+    # the text numbers the unexplained spots from 1, as rows of the input, with their positions
+    text = "\n".join(res.summary_lines())
+    for i in strays:
+        x, y = m.spots.positions[i]
+        assert f"#{i + 1} ({x:.1f}, {y:.1f})" in text
     d = res.to_dict()
     assert d["matched_count"] == len(res.pairs) and len(d["absent"]) == len(res.absent)
 

@@ -46,6 +46,9 @@ DEFAULT_GATE_PX = 4.0
 #: Absent spots with kinematic intensity below this fraction of the matched median are "weak".
 WEAK_FRACTION = 0.05
 
+#: Unexplained and absent spots listed one by one in the text summary.
+SUMMARY_ITEMS = 20
+
 _FORBIDDEN = 1e12
 
 
@@ -313,11 +316,16 @@ class MatchResult:
     def summary_lines(self) -> list[str]:
         """A short report, one line per item."""
         p = self.predicted
+        shown = SUMMARY_ITEMS
+        unexpl = [f"#{i + 1} ({self.measured_px[i, 0]:.1f}, {self.measured_px[i, 1]:.1f})"
+                  for i in self.unexplained[:shown]]
+        more = len(self.unexplained) - shown
         lines = [
             f"candidate    {p.description} ({p.n_domains} domain{'s' if p.n_domains != 1 else ''})",
             f"matched      {len(self.pairs)} spots, rms {self.rms_px:.2f} px = {self.rms_k:.4f} 1/Å",
             f"unexplained  {len(self.unexplained)} measured spot(s)"
-            + (": " + ", ".join(f"#{i}" for i in self.unexplained[:20]) if len(self.unexplained) else ""),
+            + (" (#n: the n-th spot of the input, at (x, y) px): " + ", ".join(unexpl) if unexpl else "")
+            + (f" and {more} more" if more > 0 else ""),
         ]
         if len(self.absent):
             counts: dict[str, int] = {}
@@ -328,11 +336,13 @@ class MatchResult:
                 + ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
                 + ")"
             )
-            for j, v in list(zip(self.absent, self.verdicts, strict=True))[:20]:
+            for j, v in list(zip(self.absent, self.verdicts, strict=True))[:shown]:
                 lines.append(f"             ({p.label_text(j)})  {v}")
+            if len(self.absent) > shown:
+                lines.append(f"             ... and {len(self.absent) - shown} more (all in the JSON output)")
         else:
             lines.append("absent       none")
-        lines.extend(self.notes)
+        lines.extend(f"note         {n}" for n in self.notes)
         return lines
 
 
