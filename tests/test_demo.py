@@ -255,6 +255,20 @@ def test_cli_writes_folder_and_summary(demo, tmp_path, monkeypatch, capsys):
     assert (out / "results.json").is_file()
 
 
+def test_cli_json_inside_the_folder_is_refused_before_running(tmp_path, monkeypatch, capsys):
+    # '--json' naming the output folder (or a file in it) failed only after the whole run.
+    def must_not_run(**kw):
+        raise AssertionError("the demo ran")
+
+    monkeypatch.setattr(demo_mod, "run_demo", must_not_run)
+    out = tmp_path / "run"
+    for target in (out, out / "extra.json"):
+        assert main(["demo", "--fast", "--out", str(out), "--json", str(target)]) == 2
+        err = capsys.readouterr().err
+        assert "lies in the demo folder" in err and "Traceback" not in err and err.count("\n") == 1
+    assert not out.exists()
+
+
 def test_cli_refuses_to_replace_a_foreign_folder(tmp_path, capsys):
     other = tmp_path / "mine"
     other.mkdir()

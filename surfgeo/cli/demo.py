@@ -90,12 +90,21 @@ def summary_lines(result, files) -> list[str]:
 
 
 def run(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from surfgeo.errors import InputError
     from surfgeo.io import check_writable, dump_json
     from surfgeo.workflows.demo import run_demo
     from surfgeo.workflows.report import check_output_folder, default_folder, write_demo_folder
 
     out = check_output_folder(args.out, args.force) if args.out else default_folder(".")
     if args.json and args.json != "-":
+        target = Path(args.json).resolve()
+        if target == out.resolve() or out.resolve() in target.parents:
+            raise InputError(
+                f"--json {args.json} lies in the demo folder {out}, which holds results.json already; "
+                "give a file outside it or '-' for the terminal."
+            )
         check_writable(args.json, args.force)
     result = run_demo(fast=args.fast)
     files = write_demo_folder(result, out, force=args.force, dpi=60 if args.fast else 110)
