@@ -255,6 +255,21 @@ def test_cli_writes_folder_and_summary(demo, tmp_path, monkeypatch, capsys):
     assert (out / "results.json").is_file()
 
 
+def test_cli_default_folder_is_new_each_time(demo, tmp_path, monkeypatch, capsys):
+    # Without --out the demo makes a new folder in the current directory and never reuses one.
+    monkeypatch.setattr(demo_mod, "run_demo", lambda **kw: demo)
+    monkeypatch.chdir(tmp_path)
+    assert main(["demo", "--fast"]) == 0
+    assert main(["demo", "--fast"]) == 0
+    text = capsys.readouterr().out
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["surfgeo-demo", "surfgeo-demo-2"]
+    assert "files in surfgeo-demo/" in text and "files in surfgeo-demo-2/" in text
+    # the screen line is the saved calibration (calibration.json), with its refined offset
+    saved = json.loads((tmp_path / "surfgeo-demo" / "calibration.json").read_text())
+    assert f"centre ({saved['centre_px'][0]:.1f}, {saved['centre_px'][1]:.1f}) px" in text
+    assert f"energy offset {saved['energy_offset_eV']:+.2f} eV" in text
+
+
 def test_cli_json_inside_the_folder_is_refused_before_running(tmp_path, monkeypatch, capsys):
     # '--json' naming the output folder (or a file in it) failed only after the whole run.
     def must_not_run(**kw):

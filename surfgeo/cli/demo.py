@@ -73,10 +73,10 @@ def summary_lines(result, files) -> list[str]:
         lines.append(f"         spot positions alone cannot separate {', '.join(g)}")
     ranking = "; ".join(f"{c.rank}. {c.file} R = {c.r_factor:.3f}" for c in result.candidates)
     lines.append(f"ranking  {ranking}")
-    cal = result.calibration
+    cal = result.best.calibration  # the one saved in calibration.json
     lines.append(f"screen   centre ({cal.screen.centre_x:.1f}, {cal.screen.centre_y:.1f}) px, "
                  f"{cal.n_matched} integer-order spots, rms {cal.rms_px:.2f} px; energy offset "
-                 f"{result.best.energy_offset:+.2f} eV")
+                 f"{cal.energy_offset:+.2f} eV (refined on the intensities of the answer)")
     lines.append("")
     lines.append(f"files in {folder}/")
     width = max(len(p.name) for p in files.all_files())
