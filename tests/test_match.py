@@ -162,6 +162,17 @@ def test_glide_extinctions_are_reported_as_extinct():
     res2 = match_spots(P2, cal, m.energy, atoms, gate_px=3.0, predicted=pred)
     verdict = dict(zip(res2.absent.tolist(), res2.verdicts, strict=True))
     assert verdict[int(strong)] == "expected"
+    # drop the faintest non-extinct beam: 'weak' once its intensity is below weak_fraction times
+    # the median intensity of the matched spots, 'expected' above
+    faint = np.flatnonzero(keep)[np.argmin(np.where(pred.integer[keep], np.inf, pred.intensity[keep]))]
+    P3 = pred.pixels[np.setdiff1d(np.flatnonzero(keep), [faint])]
+    median = float(np.median(pred.intensity[np.setdiff1d(np.flatnonzero(keep), [faint])]))
+    ratio = pred.intensity[faint] / median
+    assert 0.05 < ratio < 0.9
+    for fraction, expected in ((ratio * 1.1, "weak"), (ratio * 0.9, "expected")):
+        res3 = match_spots(P3, cal, m.energy, atoms, gate_px=3.0, predicted=pred, weak_fraction=fraction)
+        verdict = dict(zip(res3.absent.tolist(), res3.verdicts, strict=True))
+        assert verdict[int(faint)] == expected
 
 
 def test_summary_mentions_counts():
