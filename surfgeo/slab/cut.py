@@ -947,7 +947,7 @@ def slab_from_face(
         # the top layer and the periodic image of the bottom layer closer than a sane minimum
         from ase.data import covalent_radii
 
-        if vacuum < 2 * CONTACT_FACTOR * float(covalent_radii[np.unique(znum)].max()):
+        if vacuum < 2 * CONTACT_FACTOR * max(float(covalent_radii[z]) for z in set(znum.tolist())):
             check_distances(atoms, f"a vacuum of {vacuum:g} A",
                             "give a larger vacuum, or 0 for a bulk-periodic cell")
 
