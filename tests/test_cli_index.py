@@ -497,3 +497,27 @@ def test_saved_energy_offset_is_shown(sqrt3, capsys, tmp_path):
     )
     assert code == 0, err
     assert "energy offset +1.50 eV (set, not fitted)" in text and "(true = nominal +1.50 eV)" in text
+
+
+def test_saved_calibration_gives_the_image_size(capsys, tmp_path):
+    # Spots of a 1024 px image with a calibration saved for it were checked against the 512 px
+    # default screen ("lies outside the 512x512 px image") unless --screen repeated the size.
+    m = synthetic_measurement(5, lattice=Lattice2D.hexagonal(2.77), matrix=[[2, 1], [-1, 1]], energy=96.0,
+                              size=1024)
+    spots, cal = tmp_path / "spots.csv", tmp_path / "screen.json"
+    write_spot_csv(spots, m.spots)
+    base = ["--lattice", "hex:2.77", "--energy", "96"]
+    code, _, err = run(["calibrate", spots, *base, "--screen", m.screen_spec(), "--json", cal], capsys)
+    assert code == 0, err
+    for command in (["index", spots], ["match", spots, "--wood", "(sqrt3 x sqrt3)R30"]):
+        code, text, err = run([*command, *base, "--calibration", cal, "--json", "-"], capsys)
+        assert code == 0, err
+    # --screen beside --calibration is refused (both describe the screen) ...
+    err = bad(["index", spots, *base, "--calibration", cal, "--screen", "sphere:size=1024"], capsys)
+    assert "--screen and --calibration" in err
+    # ... and so is an image of another size than the calibration's
+    small = tmp_path / "small.png"
+    s = synthetic_measurement(3, lattice=Lattice2D.hexagonal(2.77), matrix=[[2, 1], [-1, 1]], energy=96.0)
+    write_bytes(small, encode_image(s.render().image, "png", "uint16"))
+    err = bad(["match", small, *base, "--wood", "(sqrt3 x sqrt3)R30", "--calibration", cal], capsys)
+    assert "512x512 px but the calibration was made for 1024x1024 px" in err

@@ -140,12 +140,16 @@ def _is_csv(path: Path) -> bool:
     return path.suffix.lower() in (".csv", ".txt", ".tsv", ".dat")
 
 
-def load_measurement(path: str, screen_spec: str | None, energy: float | None = None) -> Measurement:
+def load_measurement(
+    path: str, screen_spec: str | None, energy: float | None = None, screen=None
+) -> Measurement:
     """Read one input: a spot-list CSV (pixels or momenta) or an image (spots detected).
 
     The nominal screen is ``screen_spec``; for an image whose size the spec does not state,
     the image's size is used, and when the detector's mask finds the screen disc and the spec
     gives no scale, the nominal scale follows from the disc radius and the acceptance.
+    ``screen`` (the screen of a saved calibration) replaces the spec: the spots must lie in its
+    image, and an image must have its size.
     """
     import numpy as np
 
@@ -162,7 +166,8 @@ def load_measurement(path: str, screen_spec: str | None, energy: float | None = 
         spots = read_spot_csv(p)
         if isinstance(spots, MomentumSpotList):
             return _momentum_measurement(spots, str(p), energy)
-        screen = parse_screen(spec)
+        given = screen is not None
+        screen = screen if given else parse_screen(spec)
         P = spots.positions
         outside = (
             np.flatnonzero(
@@ -178,8 +183,12 @@ def load_measurement(path: str, screen_spec: str | None, energy: float | None = 
             i = int(outside[0])
             raise InputError(
                 f"{p}: spot {i + 1} at ({P[i, 0]:g}, {P[i, 1]:g}) px lies outside the "
-                f"{screen.width}x{screen.height} "
-                "px image of the screen spec; give the image size with --screen sphere:size=WxH."
+                f"{screen.width}x{screen.height} px image "
+                + (
+                    "of the calibration; give the calibration made for these spots."
+                    if given
+                    else "of the screen spec; give the image size with --screen sphere:size=WxH."
+                )
             )
         return Measurement(P, str(p), screen)
     # an image
@@ -193,6 +202,11 @@ def load_measurement(path: str, screen_spec: str | None, energy: float | None = 
     h, w = image.shape
     if h < 16 or w < 16:
         raise FileFormatError(f"{p} is only {w}x{h} pixels; a LEED image needs at least 16x16.")
+    if screen is not None and (screen.width, screen.height) != (w, h):
+        raise InputError(
+            f"{p} is {w}x{h} px but the calibration was made for {screen.width}x{screen.height} px "
+            "images; give the calibration made with this camera setting."
+        )
     masks = build_mask(image.data, screen="auto", gun="auto")
     det = detect_spots(image, mask=masks.usable)
     if len(det.spots) < 3:
@@ -201,6 +215,8 @@ def load_measurement(path: str, screen_spec: str | None, energy: float | None = 
             "at least 3; check the image with 'surfgeo detect' (threshold, masks) or give a spot list."
         )
     notes = list(det.notes)
+    if screen is not None:
+        return Measurement(det.spots.positions, str(p), screen, image=image.data, notes=notes)
     if "size" not in explicit and not spec.lower().endswith(".json"):
         spec = spec + ("," if ":" in spec else ":") + f"size={w}x{h}"
     screen = parse_screen(spec)
@@ -262,6 +278,22 @@ def check_outputs(args) -> None:
     from surfgeo.cli._common import check_outputs as check
 
     check({"--json": args.json, "--plot": args.plot}, args.force, figure="--plot")
+
+
+def saved_calibration(args):
+    """The calibration of ``--calibration`` (None without it); ``--screen`` must not be given
+    too, as both describe the screen."""
+    from surfgeo.errors import InputError
+    from surfgeo.measure.calibrate import load_calibration
+
+    if not args.calibration:
+        return None
+    if args.screen:
+        raise InputError(
+            "--screen and --calibration both describe the screen; give only --calibration (it holds "
+            "the fitted screen and its image size)."
+        )
+    return load_calibration(args.calibration)
 
 
 def require_spots(m: Measurement, calibrating: bool, saved_hint: bool = True) -> None:

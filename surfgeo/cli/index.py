@@ -142,11 +142,11 @@ def run(args: argparse.Namespace) -> int:
         load_measurement,
         parse_energy,
         require_spots,
+        saved_calibration,
         write_report,
     )
     from surfgeo.errors import InputError
     from surfgeo.io import dump_json
-    from surfgeo.measure.calibrate import load_calibration
     from surfgeo.measure.index import index_pattern
 
     check_outputs(args)
@@ -157,12 +157,13 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"--top must be at least 1, got {args.top}.")
     if args.gate is not None and not (args.gate > 0):
         raise InputError(f"--gate must be a positive number of pixels, got {args.gate}.")
-    m = load_measurement(args.input, args.screen, energy)
+    saved = saved_calibration(args)
+    m = load_measurement(args.input, args.screen, energy, screen=None if saved is None else saved.screen)
     cal = m.calibration
-    if args.calibration:
+    if saved is not None:
         if m.momentum:
             raise InputError("a momentum-space spot list needs no --calibration.")
-        cal = load_calibration(args.calibration)
+        cal = saved
     require_spots(m, calibrating=cal is None)
     res = index_pattern(
         m.positions,

@@ -95,11 +95,12 @@ def run(args: argparse.Namespace) -> int:
         load_measurement,
         parse_energy,
         require_spots,
+        saved_calibration,
         write_report,
     )
     from surfgeo.errors import InputError
     from surfgeo.io import dump_json
-    from surfgeo.measure.calibrate import calibrate, load_calibration
+    from surfgeo.measure.calibrate import calibrate
     from surfgeo.measure.match import match_spots
 
     check_outputs(args)
@@ -109,12 +110,13 @@ def run(args: argparse.Namespace) -> int:
     if args.gate is not None and not (args.gate > 0):
         raise InputError(f"--gate must be a positive number of pixels, got {args.gate}.")
     candidate = _candidate(args, lattice)
-    m = load_measurement(args.input, args.screen, energy)
-    require_spots(m, calibrating=not (m.momentum or args.calibration))
+    saved = saved_calibration(args)
+    m = load_measurement(args.input, args.screen, energy, screen=None if saved is None else saved.screen)
+    require_spots(m, calibrating=not (m.momentum or saved))
     if m.momentum:
         cal = m.calibration
-    elif args.calibration:
-        cal = load_calibration(args.calibration)
+    elif saved is not None:
+        cal = saved
     else:
         cal = calibrate(m.positions, lattice, energy, m.screen)
     res = match_spots(
