@@ -521,3 +521,25 @@ def test_saved_calibration_gives_the_image_size(capsys, tmp_path):
     write_bytes(small, encode_image(s.render().image, "png", "uint16"))
     err = bad(["match", small, *base, "--wood", "(sqrt3 x sqrt3)R30", "--calibration", cal], capsys)
     assert "512x512 px but the calibration was made for 1024x1024 px" in err
+
+
+def test_match_refits_the_screen_to_the_matched_spots(capsys, tmp_path):
+    # A calibration from the first shell of integer spots of a 1024 px image extrapolates badly to
+    # the rim; 'match' refits the screen to every matched spot and pairs again (--no-refit: not).
+    m = synthetic_measurement(5, lattice=Lattice2D.hexagonal(2.77), matrix=[[2, 1], [-1, 1]], energy=96.0,
+                              size=1024)
+    spots, cal = tmp_path / "spots.csv", tmp_path / "screen.json"
+    write_spot_csv(spots, m.spots)
+    base = [spots, "--lattice", "hex:2.77", "--energy", "96", "--wood", "(sqrt3 x sqrt3)R30"]
+    code, _, err = run(["calibrate", *base[:5], "--screen", m.screen_spec(), "--json", cal], capsys)
+    assert code == 0, err
+    strays = int((m.origin < 0).sum())
+    code, text, err = run(["match", *base, "--calibration", cal, "--json", "-"], capsys)
+    assert code == 0, err
+    data = json.loads(text)
+    assert data["unexplained_count"] == strays
+    assert data["calibration"]["refit_spots"] == data["matched_count"] == len(m.spots) - strays
+    code, text, err = run(["match", *base, "--calibration", cal, "--json", "-", "--no-refit"], capsys)
+    assert code == 0, err
+    data = json.loads(text)
+    assert data["unexplained_count"] > strays and data["calibration"]["refit_spots"] == 0

@@ -188,3 +188,34 @@ def test_fast_pixels_used_for_predictions_handles_non_emerging_beams():
     scr = Calibration(screen=synthetic_measurement(5).screen)
     px = fast_pixels(scr.screen, np.array([[100.0, 0.0]]), 50.0)
     assert np.all(np.isnan(px))
+
+
+def test_refit_to_the_matched_spots_recovers_the_rim():
+    # A calibration fitted to the first shell of integer spots of a 1024 px image extrapolates
+    # badly to the rim: there, real fractional-order spots fell outside the gate and were called
+    # unexplained. Refitting the screen to every matched spot and matching again explains them.
+    from surfgeo.measure.calibrate import calibrate
+    from surfgeo.measure.match import match_with_refit
+
+    lat = Lattice2D.hexagonal(2.77)
+    m = synthetic_measurement(5, lattice=lat, matrix=[[2, 1], [-1, 1]], energy=96.0, size=1024)
+    sup = Superstructure(lat, [[2, 1], [-1, 1]])
+    cal = calibrate(m.spots, lat, m.energy, m.nominal_screen)
+    strays = set(np.flatnonzero(m.origin < 0).tolist())
+    first = match_spots(m.spots, cal, m.energy, sup)
+    assert set(first.unexplained.tolist()) > strays  # the defect this guards against
+    res, refit = match_with_refit(m.spots, cal, m.energy, sup)
+    assert set(res.unexplained.tolist()) == strays
+    assert refit.n_refit >= len(first.pairs) and refit.n_matched == cal.n_matched
+    # every pair is a spot with the beam that made it (labels agree only up to the lattice
+    # symmetry the screen cannot fix, so compare where the truth put that beam)
+    i, j = res.pairs.T
+    assert np.all(np.linalg.norm(res.predicted.pixels[j] - m.truth_px[m.origin[i]], axis=1) < 1.0)
+    # and the refitted screen puts the outermost beams closer to the truth than the first one
+    r = np.linalg.norm(m.truth_px[m.origin[i]] - [m.screen.centre_x, m.screen.centre_y], axis=1)
+    far = np.argsort(r)[-6:]
+    k = res.predicted.k_parallel[j[far]]
+    truth = m.truth_px[m.origin[i[far]]]
+    before = np.linalg.norm(cal.to_pixels(k, m.energy) - truth, axis=1)
+    after = np.linalg.norm(refit.to_pixels(k, m.energy) - truth, axis=1)
+    assert after.max() < before.max() and after.max() < 1.0

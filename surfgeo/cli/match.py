@@ -12,7 +12,9 @@ rotational and mirror domains) or a model file (--model, a slab built as by 'sur
 its kinematic intensities then say whether a spot that is not seen is extinct or weak). The
 screen comes from --calibration (saved by 'surfgeo calibrate') or is calibrated on the fly
 from the integer-order spots. Measured and predicted spots are paired one to one (Hungarian
-assignment on squared distances, pairs farther apart than the gate forbidden).
+assignment on squared distances, pairs farther apart than the gate forbidden); the screen is
+then refitted to every matched spot, integer and fractional order (a far longer lever arm than
+the first shell of integer spots), and the spots are paired again (--no-refit: not).
 
 Reported: matched spots with residuals in px and in 1/Å (parallel momentum), measured spots
 the candidate does not explain, and predicted spots on the screen that were not seen, each
@@ -58,6 +60,12 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
     p.add_argument(
         "--no-domains", action="store_true", help="the candidate as given, without its symmetry domains"
     )
+    p.add_argument(
+        "--no-refit",
+        action="store_true",
+        help="use the calibration as it is (by default the screen is refitted to every matched spot, "
+        "integer and fractional order, and the spots are matched again)",
+    )
     add_output_options(p, plot=True)
     add_contrast_option(p)
     p.set_defaults(func=run)
@@ -101,7 +109,7 @@ def run(args: argparse.Namespace) -> int:
     from surfgeo.errors import InputError
     from surfgeo.io import dump_json
     from surfgeo.measure.calibrate import calibrate
-    from surfgeo.measure.match import match_spots
+    from surfgeo.measure.match import match_spots, match_with_refit
 
     check_outputs(args)
     style = contrast_kwargs(args)
@@ -119,9 +127,14 @@ def run(args: argparse.Namespace) -> int:
         cal = saved
     else:
         cal = calibrate(m.positions, lattice, energy, m.screen)
-    res = match_spots(
-        m.positions, cal, energy, candidate, lattice, gate_px=args.gate, domains=not args.no_domains
-    )
+    if m.momentum or args.no_refit:
+        res = match_spots(
+            m.positions, cal, energy, candidate, lattice, gate_px=args.gate, domains=not args.no_domains
+        )
+    else:
+        res, cal = match_with_refit(
+            m.positions, cal, energy, candidate, lattice, gate_px=args.gate, domains=not args.no_domains
+        )
     record = {"input": m.source, "calibration": cal.to_dict(), **res.to_dict(), "input_notes": m.notes}
     if args.json != "-":
         from surfgeo.cli.calibrate import calibration_lines

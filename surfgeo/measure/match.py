@@ -27,6 +27,7 @@ References
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 
@@ -412,6 +413,70 @@ def match_spots(
     )
 
 
+#: Fewest matched spots a calibration is refitted to by :func:`match_with_refit`.
+MIN_REFIT_SPOTS = 6
+
+
+def match_with_refit(
+    spots,
+    calibration: Calibration,
+    energy_eV: float,
+    candidate,
+    lattice: Lattice2D | None = None,
+    *,
+    rounds: int = 2,
+    **options,
+) -> tuple[MatchResult, Calibration]:
+    """Match, refit the screen to every matched spot, and match again.
+
+    A calibration fitted to the few integer-order spots of the first shell extrapolates poorly
+    to the rim of a large image, where fractional-order spots then fall outside the gate. Each
+    round refits the screen to all matched spots, integer and fractional order, whose parallel
+    momenta the assignment gives (:func:`surfgeo.measure.calibrate.refine_calibration`, the
+    same refit the indexing makes), then assigns again; it stops when the matched spots no
+    longer change. With fewer than :data:`MIN_REFIT_SPOTS` matches the calibration is kept.
+
+    Parameters
+    ----------
+    spots, calibration, energy_eV, candidate, lattice, **options
+        As for :func:`match_spots` (``predicted`` is not accepted: the screen changes).
+    rounds : int
+        Most refits.
+
+    Returns
+    -------
+    MatchResult
+        The last assignment.
+    Calibration
+        The calibration it was made with (``n_refit`` says how many spots it rests on).
+    """
+    from surfgeo.measure.calibrate import refine_calibration
+
+    if "predicted" in options:
+        raise TypeError("match_with_refit predicts the spots itself; do not pass 'predicted'.")
+    match_options = {k: options.pop(k) for k in ("gate_px", "weak_fraction") if k in options}
+    cal = _as_calibration(calibration)
+    pred = predict_spots(cal, energy_eV, candidate, lattice, **options)
+    res = match_spots(spots, cal, energy_eV, None, predicted=pred, **match_options)
+    for _ in range(rounds):
+        if len(res.pairs) < MIN_REFIT_SPOTS:
+            break
+        cal = refine_calibration(
+            cal, res.measured_px[res.pairs[:, 0]], pred.k_parallel[res.pairs[:, 1]], energy_eV
+        )
+        # the same beams on the refitted screen (the energy offset is kept)
+        px = fast_pixels(cal.screen, pred.k_parallel, pred.energy)
+        pred = dataclasses.replace(
+            pred, pixels=px, visible=on_screen(cal.screen, px, pred.k_parallel, wavenumber(pred.energy))
+        )
+        new = match_spots(spots, cal, energy_eV, None, predicted=pred, **match_options)
+        same = np.array_equal(new.pairs, res.pairs)
+        res = new
+        if same:
+            break
+    return res, cal
+
+
 def _verdicts(pred: PredictedSpots, absent: np.ndarray, pairs: np.ndarray, weak_fraction: float) -> list[str]:
     if pred.intensity is None:
         return ["unknown"] * len(absent)
@@ -430,4 +495,12 @@ def _verdicts(pred: PredictedSpots, absent: np.ndarray, pairs: np.ndarray, weak_
     return out
 
 
-__all__ = ["PredictedSpots", "MatchResult", "predict_spots", "assign", "match_spots", "WEAK_FRACTION"]
+__all__ = [
+    "PredictedSpots",
+    "MatchResult",
+    "predict_spots",
+    "assign",
+    "match_spots",
+    "match_with_refit",
+    "WEAK_FRACTION",
+]
