@@ -22,12 +22,14 @@ the candidate does not explain, and predicted spots on the screen that were not 
 median matched intensity), 'expected' (should have been seen) or 'unknown' (no atoms).
 
 examples:
-  surfgeo match spots.csv --lattice hex:2.77 --energy 96 "(sqrt3 x sqrt3)R30" \\
+  surfgeo match spots.csv --lattice hex:2.77 --energy 96 --wood "(sqrt3 x sqrt3)R30" \\
       --calibration screen.json --json -
       a (√3×√3)R30° superstructure against a spot list with a saved calibration
 
-  surfgeo match pattern.png --lattice "Cu(100)" --energy 110 --model co_c2x2.toml --plot match.png
-      a model file against an image, calibrating the screen from its integer-order spots
+  surfgeo match pattern.png --lattice "Ni(100)" --energy 110 --model structures/ni100_s_c2x2.toml \\
+      --plot match.png
+      a model file (from surfgeo's structures/ folder) against an image, calibrating the screen
+      from its integer-order spots
 """
 
 
