@@ -423,6 +423,16 @@ def test_bad_options(sqrt3, capsys, tmp_path):
     assert "one --energy per input" in err
 
 
+def test_joint_calibration_of_images_of_different_sizes_is_refused(sqrt3, capsys, tmp_path):
+    d, m = sqrt3
+    small = tmp_path / "small.png"
+    write_bytes(small, encode_image(m.render().image[:400, :380], "png", "uint16"))
+    err = bad(
+        ["calibrate", d / "pattern.png", small, "--lattice", "hex:2.77", "--energy", "120", "150"], capsys
+    )
+    assert "one camera frame" in err and "512x512 px" in err and "380x400 px" in err
+
+
 def test_image_without_spots(capsys, tmp_path):
     blank = tmp_path / "blank.png"
     write_bytes(blank, encode_image(np.full((128, 128), 100.0), "png", "uint8"))

@@ -409,6 +409,14 @@ def run(args: argparse.Namespace) -> int:
                 f"{m.source} lists momenta (kx, ky); a momentum-space list needs no calibration."
             )
         require_spots(m, calibrating=True, saved_hint=False)
+    images = [m for m in meas if m.image is not None]
+    for m in images[1:]:
+        if m.image.shape != images[0].image.shape:
+            (h0, w0), (h, w) = images[0].image.shape, m.image.shape
+            raise InputError(
+                "a joint calibration needs images of one camera frame, but "
+                f"{images[0].source} is {w0}x{h0} px and {m.source} is {w}x{h} px."
+            )
     screen = meas[0].screen
     notes = []
     if len(meas) == 1:
