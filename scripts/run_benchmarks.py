@@ -72,6 +72,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--only", help="comma-separated benchmark names, e.g. detect,notation")
     args = parser.parse_args(argv)
     only = set(args.only.split(",")) if args.only else None
+    known = {p.stem.removeprefix("bench_") for p in HERE.glob("bench_*.py")}
+    if only and only - known:
+        parser.error(
+            f"no benchmark named {', '.join(sorted(only - known))}; "
+            f"the benchmarks are {', '.join(sorted(known))}."
+        )
     rows, failed = run(args.quick, only)
     print(format_table(rows))
     if failed:
