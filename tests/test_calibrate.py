@@ -134,8 +134,8 @@ def test_recognition_with_fractional_and_stray_spots():
     # jitter, missing and stray spots). When only the first shell of integer spots is on the
     # screen among dense fractional spots, several hypotheses can be nearly equally good; the
     # calibration keeps them all as candidates and indexing chooses (test_index). Measured on
-    # 60 cases: the best hypothesis is right in about 84 %, the right one is among the
-    # candidates in 59-60 of 60.
+    # these 40 cases: the best hypothesis is right in 35, the right one is among the candidates
+    # in 39.
     rng = np.random.default_rng(2024)
     n, best, among = 40, 0, 0
     for _ in range(n):
@@ -146,7 +146,7 @@ def test_recognition_with_fractional_and_stray_spots():
         among += any(ok)
     print(f"calibration: best hypothesis right in {best}/{n}, right one among the candidates in {among}/{n}")
     assert among >= 38
-    assert best >= 28
+    assert best >= 32
 
 
 def test_p2x2_hexagonal_at_low_energy_is_not_taken_for_a_smaller_lattice():

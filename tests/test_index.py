@@ -17,8 +17,9 @@ from surfgeo.measure.calibrate import Calibration, fast_pixels, on_screen
 from surfgeo.measure.synthetic import positions_coincide, synthetic_measurement
 from surfgeo.screen import default_screen
 
-# sum of divisors sigma(n), n = 1..12.  From memory: OEIS A000203
+# sum of divisors sigma(n), n = 1..12.  From memory: OEIS A000203 (checked by counting below)
 SIGMA = [1, 3, 4, 7, 6, 12, 8, 15, 13, 18, 12, 28]
+assert SIGMA == [sum(d for d in range(1, n + 1) if n % d == 0) for n in range(1, 13)]
 
 
 def orbit_of(table, M):
@@ -114,6 +115,8 @@ def test_classic_superstructures_rank_first(lat, M, energy, wood, domains):
 
 
 def test_p2x2_and_three_domain_2x1_are_grouped():
+    # Source: sources.md "Domains" (Common practice): three-domain (2x1) on a hexagonal lattice
+    # gives the spot positions of p(2x2)
     m, res = classic(Lattice2D.hexagonal(2.77), [[2, 0], [0, 1]], 120.0)
     top = res.candidates[:2]
     assert {c.wood for c in top} == {"(2×1)", "(2×2)"}
@@ -128,6 +131,8 @@ def test_p2x2_and_three_domain_2x1_are_grouped():
 
 
 def test_square_2x1_is_not_p2x2():
+    # Source: sources.md "Domains" (Common practice): two-domain (2x1) on a square lattice gives
+    # the p(2x2) positions without the (1/2, 1/2) spots
     m, res = classic(Lattice2D.square(2.55), [[2, 0], [0, 1]], 140.0)
     best = res.candidates[0]
     assert best.wood == "(2×1)" and best.domains == 2 and not best.indistinguishable_from
