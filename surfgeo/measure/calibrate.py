@@ -78,6 +78,7 @@ import numpy as np
 from scipy.optimize import least_squares
 from scipy.spatial import cKDTree
 
+from surfgeo.checks import positive_number
 from surfgeo.diffraction.beams import reciprocal_points_in_disc
 from surfgeo.diffraction.electron import onset_energy, wavenumber
 from surfgeo.errors import ComputationError, FileFormatError, InputError
@@ -959,13 +960,7 @@ def _positions(spots) -> np.ndarray:
 
 
 def _check_energy(e) -> float:
-    try:
-        v = float(e)
-    except (TypeError, ValueError):
-        raise InputError(f"the beam energy must be a positive number of eV, got {e!r}.") from None
-    if not math.isfinite(v) or v <= 0:
-        raise InputError(f"the beam energy must be a positive number of eV, got {e!r}.")
-    return v
+    return positive_number(e, "the beam energy", "energy", "eV")
 
 
 # ------------------------------------------------------------------------------- least squares
@@ -1012,6 +1007,14 @@ def _fit(
         x0.append(_distance_param(screen))
     if fit_offset:
         x0.append(0.0)
+    return _solve(images, screen, np.array(x0, dtype=float), mirror, n_extra, fit_offset, f_scale), n_extra
+
+
+def _solve(images: list[_Image], screen, x0: np.ndarray, mirror: bool, n_extra: int, fit_offset: bool,
+           f_scale: float):
+    """Robust (soft-L1) least squares of the fit vector (screen, camera distance, energy offset)
+    on the matched integer spots of every image, from ``x0``; the offset keeps every true energy
+    above 1 eV."""
     x0 = np.array(x0, dtype=float)
     lo = np.full(len(x0), -np.inf)
     hi = np.full(len(x0), np.inf)
@@ -1026,11 +1029,9 @@ def _fit(
             si, bi = im.pairs[:, 0], im.pairs[:, 1]
             pred = _model_pixels(x, mirror, screen, im.beams.kp[bi], im.energy, n_extra, fit_offset)
             out.append((pred - im.P[si]).ravel())
-        r = np.concatenate(out)
-        return np.nan_to_num(r, nan=1e3)
+        return np.nan_to_num(np.concatenate(out), nan=1e3)
 
-    res = least_squares(resid, x0, loss="soft_l1", f_scale=f_scale, bounds=(lo, hi), x_scale="jac")
-    return res, n_extra
+    return least_squares(resid, x0, loss="soft_l1", f_scale=f_scale, bounds=(lo, hi), x_scale="jac")
 
 
 def _rematch(images: list[_Image], x, mirror, screen, n_extra, fit_offset, gate: float) -> None:
@@ -1465,22 +1466,7 @@ def refine_calibration(
 
 def _refit(images, screen, res, mirror, n_extra, fit_offset, f_scale):
     """Least squares again from the previous solution (all parameters)."""
-    x0 = res.x
-    lo = np.full(len(x0), -np.inf)
-    hi = np.full(len(x0), np.inf)
-    if fit_offset:
-        lo[-1] = -min(im.energy for im in images) + 1.0
-        hi[-1] = 1000.0
-
-    def resid(x):
-        out = []
-        for im in images:
-            si, bi = im.pairs[:, 0], im.pairs[:, 1]
-            pred = _model_pixels(x, mirror, screen, im.beams.kp[bi], im.energy, n_extra, fit_offset)
-            out.append((pred - im.P[si]).ravel())
-        return np.nan_to_num(np.concatenate(out), nan=1e3)
-
-    return least_squares(resid, x0, loss="soft_l1", f_scale=f_scale, bounds=(lo, hi), x_scale="jac")
+    return _solve(images, screen, res.x, mirror, n_extra, fit_offset, f_scale)
 
 
 def _orthogonal(A: np.ndarray) -> np.ndarray:

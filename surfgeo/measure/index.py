@@ -1402,63 +1402,49 @@ def _overlayer_support(ctx, G, ops, tree, kmax, return_pairs: bool = False):
     return n_exp, n_abs, None
 
 
-def _refine_overlayer(ctx, G, ops, pairs):
-    doms_R = []
-    for R in ops:  # rotation of each domain relative to G
-        doms_R.append(R)
-    base_doms = _overlayer_domains(G, ops)
-    # express every domain as G @ R_d^T with the R that produced it
-    Rd = []
-    for Gd in base_doms:
-        for R in ops:
-            if np.allclose(G @ R.T, Gd, atol=1e-9):
-                Rd.append(R)
-                break
-    si = pairs[:, 0]
-    di = pairs[:, 1]
+def _overlayer_pixels(ctx, G, ops, pairs):
+    """The model of the matched overlayer spots: a function of the flattened reciprocal basis
+    ``x`` giving their pixels (n, 2), each spot in the domain it was matched in (the domains of
+    :func:`_overlayer_domains`, each made from ``G`` by the first operation that makes it)."""
+    Rd = [next(R for R in ops if np.allclose(G @ R.T, Gd, atol=1e-9)) for Gd in _overlayer_domains(G, ops)]
+    R_of = np.array([Rd[d] for d in pairs[:, 1]])
     mn = pairs[:, 2:4].astype(float)
 
     def model(x):
-        Gx = x.reshape(2, 2)
-        g = np.einsum("ni,ij->nj", mn, Gx)
-        g = np.einsum("nj,nkj->nk", g, np.array([Rd[d] for d in di]))
+        g = np.einsum("ni,ij->nj", mn, x.reshape(2, 2))
+        g = np.einsum("nj,nkj->nk", g, R_of)
         return fast_pixels(ctx.screen, g, ctx.E)
+
+    return model
+
+
+def _refine_overlayer(ctx, G, ops, pairs):
+    """Least-squares refinement of the overlayer's reciprocal basis on the matched spots' pixels;
+    returns the basis and the residual distances (px)."""
+    si = pairs[:, 0]
+    model = _overlayer_pixels(ctx, G, ops, pairs)
 
     def resid(x):
         return np.nan_to_num((model(x) - ctx.P[si]).ravel(), nan=1e3)
 
     res = least_squares(resid, G.ravel(), loss="soft_l1", f_scale=ctx.sigma)
-    Gn = res.x.reshape(2, 2)
-    r = np.linalg.norm(model(res.x) - ctx.P[si], axis=1)
-    return Gn, r
+    return res.x.reshape(2, 2), np.linalg.norm(model(res.x) - ctx.P[si], axis=1)
 
 
 def _cov(ctx, G, ops, pairs) -> np.ndarray | None:
+    """Covariance of the flattened reciprocal basis, ``s^2 (J^T J)^-1`` at ``G``."""
     if pairs is None or len(pairs) < 3:
         return None
-    base_doms = _overlayer_domains(G, ops)
-    Rd = []
-    for Gd in base_doms:
-        for R in ops:
-            if np.allclose(G @ R.T, Gd, atol=1e-9):
-                Rd.append(R)
-                break
-    si, di, mn = pairs[:, 0], pairs[:, 1], pairs[:, 2:4].astype(float)
-
-    def model(x):
-        Gx = x.reshape(2, 2)
-        g = np.einsum("ni,ij->nj", mn, Gx)
-        g = np.einsum("nj,nkj->nk", g, np.array([Rd[d] for d in di]))
-        return fast_pixels(ctx.screen, g, ctx.E).ravel()
-
+    si = pairs[:, 0]
+    model = _overlayer_pixels(ctx, G, ops, pairs)
     x0 = G.ravel()
     J = np.empty((2 * len(si), 4))
     for i in range(4):
         h = 1e-6 * max(1.0, abs(x0[i]))
         dx = np.zeros(4)
         dx[i] = h
-        J[:, i] = (model(x0 + dx) - model(x0 - dx)) / (2 * h)
-    r = model(x0) - ctx.P[si].ravel()
+        J[:, i] = (model(x0 + dx).ravel() - model(x0 - dx).ravel()) / (2 * h)
+    r = model(x0).ravel() - ctx.P[si].ravel()
     dof = max(len(r) - 4, 1)
     s2 = float(r @ r) / dof
     try:
