@@ -307,6 +307,16 @@ def test_momentum_spot_list(capsys, tmp_path):
     assert json.loads(text)["candidates"][0]["wood"] == "c(2×2)"
     err = bad(["calibrate", f, "--lattice", "square:2.55", "--energy", "100"], capsys)
     assert "needs no calibration" in err
+    # a saved calibration beside a momentum list is refused by both commands (match ignored it)
+    from surfgeo.measure.calibrate import Calibration
+    from surfgeo.screen import default_screen
+
+    cal = tmp_path / "screen.json"
+    cal.write_text(json.dumps(Calibration(screen=default_screen()).to_dict()))
+    for command in (["index"], ["match", "--wood", "c(2x2)"]):
+        args = [command[0], f, *command[1:], "--lattice", "square:2.55", "--energy", "100"]
+        args += ["--calibration", cal]
+        assert "needs no --calibration" in bad(args, capsys)
 
 
 # --------------------------------------------------------------------------- bad input

@@ -91,6 +91,17 @@ def add_input_options(p: argparse.ArgumentParser, multiple: bool = False) -> Non
     )
 
 
+def add_gate_option(p: argparse.ArgumentParser) -> None:
+    """``--gate PX``: the largest distance of a matched spot."""
+    p.add_argument(
+        "--gate",
+        type=float,
+        default=None,
+        metavar="PX",
+        help="largest distance of a matched spot, px (default: 3.5 times the RMS position error)",
+    )
+
+
 def add_contrast_option(p: argparse.ArgumentParser) -> None:
     """``--contrast LO HI [FLATTEN]`` for the overlay figure."""
     p.add_argument(
@@ -125,15 +136,9 @@ def contrast_kwargs(args) -> dict:
 
 def parse_energy(text, what: str = "--energy") -> float:
     """A positive, finite energy in eV, or an InputError naming the option."""
-    from surfgeo.errors import InputError
+    from surfgeo.checks import positive_number
 
-    try:
-        e = float(text)
-    except (TypeError, ValueError):
-        raise InputError(f"{what} must be a number of eV, got {text!r}.") from None
-    if not math.isfinite(e) or e <= 0:
-        raise InputError(f"{what} must be a positive number of eV, got {text!r}.")
-    return e
+    return positive_number(text, what, "energy", "eV")
 
 
 def _is_csv(path: Path) -> bool:
@@ -280,6 +285,36 @@ def check_outputs(args) -> None:
     check({"--json": args.json, "--plot": args.plot}, args.force, figure="--plot")
 
 
+def begin(args):
+    """What 'match' and 'index' do first: check the outputs and ``--contrast``, read ``--lattice``,
+    ``--energy`` and ``--gate``. Returns the figure style, the lattice and the energy (eV)."""
+    from surfgeo.cli._common import resolve_lattice
+    from surfgeo.errors import InputError
+
+    check_outputs(args)
+    style = contrast_kwargs(args)
+    lattice = resolve_lattice(args.lattice)
+    energy = parse_energy(args.energy)
+    if args.gate is not None and not (args.gate > 0):
+        raise InputError(f"--gate must be a positive number of pixels, got {args.gate}.")
+    return style, lattice, energy
+
+
+def read_spots(args, energy: float):
+    """The input of 'match' and 'index' and the calibration to use with it: a saved
+    ``--calibration``, the exact one of a momentum-space list, or None (to be fitted to the
+    spots, of which there must then be enough)."""
+    from surfgeo.errors import InputError
+
+    saved = saved_calibration(args)
+    m = load_measurement(args.input, args.screen, energy, screen=None if saved is None else saved.screen)
+    if saved is not None and m.momentum:
+        raise InputError(f"{m.source} lists momenta (kx, ky); a momentum-space list needs no --calibration.")
+    cal = saved if saved is not None else m.calibration
+    require_spots(m, calibrating=cal is None)
+    return m, cal
+
+
 def saved_calibration(args):
     """The calibration of ``--calibration`` (None without it); ``--screen`` must not be given
     too, as both describe the screen."""
@@ -340,16 +375,16 @@ def write_report(lines: list[str]) -> None:
 
 # =============================================================================== the command
 def register(subparsers, common: argparse.ArgumentParser) -> None:
-    from surfgeo.cli._common import add_output_options
+    from surfgeo.cli._common import add_command, add_output_options
 
-    p = subparsers.add_parser(
+    p = add_command(
+        subparsers,
+        common,
         "calibrate",
-        parents=[common],
         help="fit the screen geometry from the integer-order spots",
         description="Recognise the substrate's integer-order spots and fit the screen geometry (centre, "
         "scale, rotation, mirror, ellipticity; energy offset from several energies).",
         epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     add_input_options(p, multiple=True)
     p.add_argument(

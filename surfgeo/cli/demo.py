@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from surfgeo.cli._common import add_output_options
+from surfgeo.cli._common import add_command, add_output_options
 
 ORDER = 90
 
@@ -38,15 +38,15 @@ examples:
 
 
 def register(subparsers, common: argparse.ArgumentParser) -> None:
-    p = subparsers.add_parser(
+    p = add_command(
+        subparsers,
+        common,
         "demo",
-        parents=[common],
         help="run the whole job on built-in synthetic data and write a report",
         description="Run the main job end to end on built-in synthetic data (an invented scenario): "
         "spots -> screen calibration -> indexing -> candidate models -> DFT input -> expected "
         "spots at a new energy; write a self-contained HTML report with figures and JSON results.",
         epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("--out", metavar="DIR",
                    help="folder to create for the results (default: a new surfgeo-demo folder here)")

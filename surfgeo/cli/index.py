@@ -37,18 +37,18 @@ examples:
 
 
 def register(subparsers, common: argparse.ArgumentParser) -> None:
-    from surfgeo.cli._common import add_output_options
-    from surfgeo.cli.calibrate import add_contrast_option, add_input_options
+    from surfgeo.cli._common import add_command, add_output_options
+    from surfgeo.cli.calibrate import add_contrast_option, add_gate_option, add_input_options
 
-    p = subparsers.add_parser(
+    p = add_command(
+        subparsers,
+        common,
         "index",
-        parents=[common],
         help="rank the superstructures that explain a measured pattern",
         description="Index a measured LEED pattern: calibrate, try every superlattice up to a cell area "
         "with its domains, rank, group the indistinguishable ones, fit an incommensurate overlayer if "
         "needed.",
         epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     add_input_options(p)
     p.add_argument(
@@ -62,13 +62,7 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         help="largest superlattice cell area searched, in substrate cells (default 12)",
     )
     p.add_argument("--top", type=int, default=10, metavar="N", help="candidates listed (default 10)")
-    p.add_argument(
-        "--gate",
-        type=float,
-        default=None,
-        metavar="PX",
-        help="largest distance of a matched spot, px (default: 3.5 times the RMS position error)",
-    )
+    add_gate_option(p)
     add_output_options(p, plot=True)
     add_contrast_option(p)
     p.set_defaults(func=run)
@@ -135,36 +129,15 @@ def report_lines(res, source: str) -> list[str]:
 
 
 def run(args: argparse.Namespace) -> int:
-    from surfgeo.cli._common import resolve_lattice
-    from surfgeo.cli.calibrate import (
-        check_outputs,
-        contrast_kwargs,
-        load_measurement,
-        parse_energy,
-        require_spots,
-        saved_calibration,
-        write_report,
-    )
+    from surfgeo.cli.calibrate import begin, read_spots, write_report
     from surfgeo.errors import InputError
     from surfgeo.io import dump_json
     from surfgeo.measure.index import index_pattern
 
-    check_outputs(args)
-    style = contrast_kwargs(args)
-    lattice = resolve_lattice(args.lattice)
-    energy = parse_energy(args.energy)
+    style, lattice, energy = begin(args)
     if args.top is not None and args.top < 1:
         raise InputError(f"--top must be at least 1, got {args.top}.")
-    if args.gate is not None and not (args.gate > 0):
-        raise InputError(f"--gate must be a positive number of pixels, got {args.gate}.")
-    saved = saved_calibration(args)
-    m = load_measurement(args.input, args.screen, energy, screen=None if saved is None else saved.screen)
-    cal = m.calibration
-    if saved is not None:
-        if m.momentum:
-            raise InputError("a momentum-space spot list needs no --calibration.")
-        cal = saved
-    require_spots(m, calibrating=cal is None)
+    m, cal = read_spots(args, energy)
     res = index_pattern(
         m.positions,
         lattice,

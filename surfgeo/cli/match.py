@@ -34,17 +34,17 @@ examples:
 
 
 def register(subparsers, common: argparse.ArgumentParser) -> None:
-    from surfgeo.cli._common import add_output_options, add_superstructure_options
-    from surfgeo.cli.calibrate import add_contrast_option, add_input_options
+    from surfgeo.cli._common import add_command, add_output_options, add_superstructure_options
+    from surfgeo.cli.calibrate import add_contrast_option, add_gate_option, add_input_options
 
-    p = subparsers.add_parser(
+    p = add_command(
+        subparsers,
+        common,
         "match",
-        parents=[common],
         help="compare a candidate's predicted spots with measured spots",
         description="Predict the spots of one candidate (superstructure with domains, or a model file) on "
         "the calibrated screen and pair them with the measured spots.",
         epilog=EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     add_input_options(p)
     add_superstructure_options(p, wood_positional=False)
@@ -52,13 +52,7 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
     p.add_argument(
         "--calibration", metavar="FILE.json", help="a saved calibration ('surfgeo calibrate --json')"
     )
-    p.add_argument(
-        "--gate",
-        type=float,
-        default=None,
-        metavar="PX",
-        help="largest distance of a matched spot, px (default: 3.5 times the RMS position error)",
-    )
+    add_gate_option(p)
     p.add_argument(
         "--no-domains", action="store_true", help="the candidate as given, without its symmetry domains"
     )
@@ -98,36 +92,15 @@ def _candidate(args, lattice):
 
 
 def run(args: argparse.Namespace) -> int:
-    from surfgeo.cli._common import resolve_lattice
-    from surfgeo.cli.calibrate import (
-        check_outputs,
-        contrast_kwargs,
-        load_measurement,
-        parse_energy,
-        require_spots,
-        saved_calibration,
-        write_report,
-    )
-    from surfgeo.errors import InputError
+    from surfgeo.cli.calibrate import begin, read_spots, write_report
     from surfgeo.io import dump_json
     from surfgeo.measure.calibrate import calibrate
     from surfgeo.measure.match import match_spots, match_with_refit
 
-    check_outputs(args)
-    style = contrast_kwargs(args)
-    lattice = resolve_lattice(args.lattice)
-    energy = parse_energy(args.energy)
-    if args.gate is not None and not (args.gate > 0):
-        raise InputError(f"--gate must be a positive number of pixels, got {args.gate}.")
+    style, lattice, energy = begin(args)
     candidate = _candidate(args, lattice)
-    saved = saved_calibration(args)
-    m = load_measurement(args.input, args.screen, energy, screen=None if saved is None else saved.screen)
-    require_spots(m, calibrating=not (m.momentum or saved))
-    if m.momentum:
-        cal = m.calibration
-    elif saved is not None:
-        cal = saved
-    else:
+    m, cal = read_spots(args, energy)
+    if cal is None:
         cal = calibrate(m.positions, lattice, energy, m.screen)
     if m.momentum or args.no_refit:
         res = match_spots(
