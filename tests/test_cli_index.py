@@ -141,10 +141,22 @@ def test_index_image(sqrt3, capsys, tmp_path):
         capsys,
     )
     assert code == 0, err
-    best = json.loads(text)["candidates"][0]
+    data = json.loads(text)
+    best = data["candidates"][0]
     assert best["wood"] == "(√3×√3)R30°"
     assert positions_coincide(np.array(best["predicted_px"]), m.truth_px, m.screen)
     assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    # the (00) spot lies in the gun's shadow found in the image: hidden, not merely unseen
+    verdicts = {tuple(a["hk"]): a["verdict"] for a in data["best_match"]["absent"]}
+    assert verdicts[("0", "0")] == "hidden"
+    # a spot list carries no mask: there the same spot stays 'unknown'
+    code, text, err = run(
+        ["index", d / "spots.csv", "--lattice", "hex:2.77", "--energy", "120"]
+        + ["--screen", "sphere:size=512x512", "--json", "-"],
+        capsys,
+    )
+    verdicts = {tuple(a["hk"]): a["verdict"] for a in json.loads(text)["best_match"]["absent"]}
+    assert verdicts[("0", "0")] == "unknown"
 
 
 def test_calibrate_then_reuse(sqrt3, capsys, tmp_path):

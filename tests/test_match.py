@@ -219,3 +219,22 @@ def test_refit_to_the_matched_spots_recovers_the_rim():
     before = np.linalg.norm(cal.to_pixels(k, m.energy) - truth, axis=1)
     after = np.linalg.norm(refit.to_pixels(k, m.energy) - truth, axis=1)
     assert after.max() < before.max() and after.max() < 1.0
+
+
+def test_spots_on_masked_pixels_are_hidden_not_missing():
+    from surfgeo.measure.match import masked_spots
+
+    m = synthetic_measurement(4, max_area=4)
+    cal = Calibration(screen=m.screen.with_params(shadow_radius=0.0, holder_deg=None), rms_px=1.0)
+    pred = predict_spots(cal, m.energy, m.domains[0], m.lattice)
+    usable = np.ones((m.screen.height, m.screen.width), dtype=bool)
+    y, x = np.mgrid[0 : m.screen.height, 0 : m.screen.width]
+    usable[np.hypot(x - m.screen.centre_x, y - m.screen.centre_y) < 30.0] = False  # a gun shadow
+    r = np.linalg.norm(pred.pixels - [cal.screen.centre_x, cal.screen.centre_y], axis=1)
+    inside = np.flatnonzero(pred.visible & (r < 29.0))
+    hidden = masked_spots(pred, usable)
+    assert set(inside.tolist()) <= set(hidden.tolist()) and len(inside) >= 1  # (00) at least
+    res = match_spots(np.zeros((0, 2)), cal, m.energy, None, predicted=pred).with_hidden(hidden)
+    verdict = dict(zip(res.absent.tolist(), res.verdicts, strict=True))
+    assert all(verdict[int(j)] == "hidden" for j in hidden)
+    assert sum(v == "hidden" for v in res.verdicts) == len(hidden)

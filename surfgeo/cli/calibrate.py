@@ -54,6 +54,15 @@ class Measurement:
     momentum: bool = False
     calibration: object = None  # a fixed Calibration for momentum lists
     notes: list = field(default_factory=list)
+    usable: object = None  # ndarray (H, W) of bool for images: pixels outside the masks
+
+    def hide_masked(self, match):
+        """A match result with its absent spots on masked pixels of the image called hidden."""
+        if match is None or self.usable is None:
+            return match
+        from surfgeo.measure.match import masked_spots
+
+        return match.with_hidden(masked_spots(match.predicted, self.usable))
 
 
 def add_input_options(p: argparse.ArgumentParser, multiple: bool = False) -> None:
@@ -220,8 +229,9 @@ def load_measurement(
             "at least 3; check the image with 'surfgeo detect' (threshold, masks) or give a spot list."
         )
     notes = list(det.notes)
+    found = {"image": image.data, "notes": notes, "usable": masks.usable}
     if screen is not None:
-        return Measurement(det.spots.positions, str(p), screen, image=image.data, notes=notes)
+        return Measurement(det.spots.positions, str(p), screen, **found)
     if "size" not in explicit and not spec.lower().endswith(".json"):
         spec = spec + ("," if ":" in spec else ":") + f"size={w}x{h}"
     screen = parse_screen(spec)
@@ -232,7 +242,7 @@ def load_measurement(
             f"nominal scale {screen.scale:.1f} px/rad from the screen disc found in the image "
             f"(radius {masks.screen.radius:.1f} px, acceptance {screen.acceptance_deg:g} degrees)."
         )
-    return Measurement(det.spots.positions, str(p), screen, image=image.data, notes=notes)
+    return Measurement(det.spots.positions, str(p), screen, **found)
 
 
 def _momentum_measurement(spots, source: str, energy: float | None) -> Measurement:

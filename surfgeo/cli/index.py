@@ -149,6 +149,7 @@ def run(args: argparse.Namespace) -> int:
         gate_px=args.gate,
     )
     res.notes.extend(m.notes)
+    res.match = m.hide_masked(res.match)
     record = res.to_dict()
     record["input"] = m.source
     if args.json != "-":

@@ -110,6 +110,7 @@ def run(args: argparse.Namespace) -> int:
         res, cal = match_with_refit(
             m.positions, cal, energy, candidate, lattice, gate_px=args.gate, domains=not args.no_domains
         )
+    res = m.hide_masked(res)
     record = {"input": m.source, "calibration": cal.to_dict(), **res.to_dict(), "input_notes": m.notes}
     if args.json != "-":
         from surfgeo.cli.calibrate import calibration_lines

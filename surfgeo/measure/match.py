@@ -10,7 +10,8 @@ where every beam lands on the screen, assign measured spots to predicted ones, a
 * **absent** predicted spots (on the screen, but nothing measured there), each with the
   kinematic verdict when the candidate has atoms: ``extinct`` (kinematic intensity zero, e.g.
   a glide-line extinction), ``weak`` (below ``weak_fraction`` of the median intensity of the
-  matched spots) or ``expected`` (it should have been seen); ``unknown`` without atoms.
+  matched spots) or ``expected`` (it should have been seen); ``unknown`` without atoms; and
+  ``hidden`` when an image mask shows that it could not be seen (:meth:`MatchResult.with_hidden`).
 
 The assignment is the Hungarian method (:func:`scipy.optimize.linear_sum_assignment`) on the
 squared distances, with pairs farther apart than the gate forbidden: it finds the largest
@@ -239,7 +240,7 @@ class MatchResult:
     absent : ndarray of int
         Visible predicted spots with no measured spot.
     verdicts : list of str
-        For each absent spot: ``extinct``, ``weak``, ``expected`` or ``unknown``.
+        For each absent spot: ``extinct``, ``weak``, ``expected``, ``unknown`` or ``hidden``.
     gate_px : float
     """
 
@@ -313,6 +314,13 @@ class MatchResult:
             "absent": absent,
             "notes": list(self.notes),
         }
+
+    def with_hidden(self, hidden) -> MatchResult:
+        """The same result with the absent spots among ``hidden`` (indices into the prediction,
+        e.g. from :func:`masked_spots`) given the verdict ``hidden``: they could not be seen."""
+        hid = {int(j) for j in np.asarray(hidden).ravel()}
+        verdicts = ["hidden" if int(j) in hid else v for j, v in zip(self.absent, self.verdicts, strict=True)]
+        return dataclasses.replace(self, verdicts=verdicts)
 
     def summary_lines(self) -> list[str]:
         """A short report, one line per item."""
@@ -413,6 +421,26 @@ def match_spots(
     )
 
 
+def masked_spots(predicted: PredictedSpots, usable) -> np.ndarray:
+    """Visible predicted spots that land on unusable pixels of the image (the gun's shadow and
+    holder, beyond the screen's rim, a user mask) or off it: indices into ``predicted``.
+
+    Parameters
+    ----------
+    predicted : PredictedSpots
+    usable : ndarray of bool, shape (H, W)
+        True where the image can be trusted (e.g. ``MaskSet.usable`` of :mod:`surfgeo.measure.masks`).
+    """
+    usable = np.asarray(usable, dtype=bool)
+    h, w = usable.shape
+    px = predicted.pixels
+    ok = np.all(np.isfinite(px), axis=1)
+    ix = np.clip(np.rint(np.nan_to_num(px[:, 0])).astype(int), 0, w - 1)
+    iy = np.clip(np.rint(np.nan_to_num(px[:, 1])).astype(int), 0, h - 1)
+    on = ok & (px[:, 0] > -0.5) & (px[:, 0] < w - 0.5) & (px[:, 1] > -0.5) & (px[:, 1] < h - 0.5)
+    return np.flatnonzero(predicted.visible & ~(on & usable[iy, ix]))
+
+
 #: Fewest matched spots a calibration is refitted to by :func:`match_with_refit`.
 MIN_REFIT_SPOTS = 6
 
@@ -502,5 +530,6 @@ __all__ = [
     "assign",
     "match_spots",
     "match_with_refit",
+    "masked_spots",
     "WEAK_FRACTION",
 ]

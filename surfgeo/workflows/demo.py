@@ -514,17 +514,6 @@ def analyse_image(path: Path, energy: float) -> ImageAnalysis:
     return ImageAnalysis(path.name, float(energy), img.data, masks, det)
 
 
-def _hidden(pred, usable: np.ndarray) -> np.ndarray:
-    """Indices of predicted spots that land on unusable pixels (or off the image)."""
-    h, w = usable.shape
-    px = pred.pixels
-    ok = np.all(np.isfinite(px), axis=1)
-    ix = np.clip(np.rint(np.nan_to_num(px[:, 0])).astype(int), 0, w - 1)
-    iy = np.clip(np.rint(np.nan_to_num(px[:, 1])).astype(int), 0, h - 1)
-    on = ok & (px[:, 0] > -0.5) & (px[:, 0] < w - 0.5) & (px[:, 1] > -0.5) & (px[:, 1] < h - 0.5)
-    return np.flatnonzero(pred.visible & ~(on & usable[iy, ix]))
-
-
 def turned(pred, op, calibration):
     """A prediction turned by a lattice point operation (the crystal's azimuth on the screen)."""
     from surfgeo.diffraction.electron import wavenumber
@@ -538,10 +527,10 @@ def turned(pred, op, calibration):
 
 def fit_image(image: ImageAnalysis, pred, calibration) -> ImageFit:
     """Match one prediction to one image and compare the intensities."""
-    from surfgeo.measure.match import match_spots
+    from surfgeo.measure.match import masked_spots, match_spots
 
     m = match_spots(image.spots, calibration, image.energy, None, predicted=pred)
-    hidden = _hidden(pred, image.usable)
+    hidden = masked_spots(pred, image.usable)
     spots = image.spots
     # measured intensities of matched spots; saturated spots and spots touching a mask are left out
     first = m.pairs[:, 0]
