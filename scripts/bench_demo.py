@@ -60,7 +60,13 @@ def main(quick: bool = False) -> list[dict]:
         t_write = time.perf_counter() - t0
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
-    mode = "fast mode" if quick else "full mode"
+    import json
+
+    from surfgeo.workflows.demo import DEMO_DATA
+
+    truth = json.loads((DEMO_DATA / "truth.json").read_text(encoding="utf-8"))
+    right = result.answer()["model_file"] == truth["true_model"]
+    mode = ("fast mode" if quick else "full mode") + f"; right answer: {right}"
     baseline = f"read + 1 Gaussian filter pass over both images: {base * 1e3:.1f} ms"
     steps = ", ".join(f"{k} {v:.2f} s" for k, v in result.timings.items())
     return [
