@@ -238,3 +238,137 @@ def test_spots_on_masked_pixels_are_hidden_not_missing():
     verdict = dict(zip(res.absent.tolist(), res.verdicts, strict=True))
     assert all(verdict[int(j)] == "hidden" for j in hidden)
     assert sum(v == "hidden" for v in res.verdicts) == len(hidden)
+
+
+# --------------------------------------------------------------------------- crystal azimuth
+#: A synthetic test model: O in an fcc hollow and C on a top site of one Pt(111) p(2x2) cell.
+#: Two adsorbates at different heights make the fractional-order intensities threefold, not sixfold
+#: (with one adsorbate per cell, or all scatterers of the cell in one plane, the kinematic
+#: fractional-order intensities obey I(g) = I(-g) and are sixfold).
+TWO_ADSORBATE_MODEL = """# Synthetic test model (invented): not a claim about a real structure.
+[model]
+format = 1
+name = "test: Pt(111)-p(2x2)-(O+C)"
+description = "Synthetic: two adsorbates at different heights, a threefold (3m) pattern."
+synthetic = true
+
+[substrate]
+crystal = "Pt"
+face = [1, 1, 1]
+layers = 4
+vacuum = 10.0
+
+[cell]
+wood = "p(2x2)"
+
+[[adsorbate]]
+species = "O"
+site = "fcc-hollow"
+bond_length = 2.05
+
+[[adsorbate]]
+species = "C"
+site = "top"
+height = 1.85
+"""
+
+
+def _threefold_twin_measurement(energy: float, folder):
+    """The test model turned by 60 degrees on the screen: the spots whose kinematic intensity
+    clears a detection threshold (synthetic). Returns the model file too."""
+    from surfgeo.measure.match import turn_prediction
+    from surfgeo.slab.info import surface_info
+    from surfgeo.slab.model import build_model
+
+    path = folder / "pt111_two_adsorbates.toml"
+    path.write_text(TWO_ADSORBATE_MODEL)
+    atoms = build_model(path)
+    lat = surface_info(atoms).lattice
+    m = synthetic_measurement(3, lattice=lat, matrix=[[2, 0], [0, 2]], energy=energy)
+    cal = Calibration(screen=m.screen, rms_px=1.0)
+    ops = lat.point_group()
+    turn60 = next(o for o in ops if o.is_rotation and abs(o.angle_deg - 60.0) < 1e-6)
+    truth = turn_prediction(predict_spots(cal, energy, atoms), turn60, cal)
+    vis = truth.visible & ~truth.extinct
+    threshold = np.quantile(truth.intensity[vis], 0.5)  # the fainter half is not detected
+    keep = vis & (truth.intensity >= threshold)
+    # verdict 'weak' for exactly what fell below the detection threshold
+    weak_fraction = 1.0001 * threshold / float(np.median(truth.intensity[keep]))
+    return atoms, lat, cal, truth, keep, weak_fraction, path
+
+
+@pytest.mark.parametrize("energy", [80.0, 140.0])
+def test_a_threefold_model_turned_by_60_degrees_is_matched_in_its_own_orientation(energy, tmp_path):
+    from surfgeo.measure.match import amplitude_r_factor, match_orientations, position_misfits
+
+    atoms, lat, cal, truth, keep, wf, _ = _threefold_twin_measurement(energy, tmp_path)
+    # an fcc(111) slab with adsorbates is threefold: its 60-degree twin has other intensities
+    # Common practice, no source: fcc(111) surface point group 3m, lattice holohedry 6mm
+    assert np.ptp(truth.intensity[keep]) > 0
+    P = truth.pixels[keep]
+    choice = match_orientations(P, cal, energy, atoms, intensities=truth.intensity[keep], gate_px=3.0,
+                                weak_fraction=wf)
+    assert len(choice.tried) == 12  # every operation of 6mm
+    # the chosen azimuth has the R factor of the true crystal itself: the detected spots agree
+    # exactly (same model), the undetected ones enter as measured zeros
+    true_r, _ = amplitude_r_factor(np.where(keep, truth.intensity, 0.0)[truth.visible],
+                                   truth.intensity[truth.visible])
+    assert abs(choice.r_factor - true_r) < 1e-9
+    assert choice.misfits == 0 and "expected" not in choice.result.verdicts
+    assert set(choice.result.verdicts) <= {"weak", "extinct"}
+    # ... and is the 60-degree twin class, not the model's own threefold class
+    assert choice.label != "as modelled"
+    assert abs(choice.tried["turned by 60 deg"][1] - true_r) < 1e-9
+    assert choice.tried["as modelled"][1] > true_r + 0.05
+    nxt = choice.runner_up()
+    assert nxt is not None and (nxt[1] > 0 or nxt[2] > 0.05)
+    assert "next best" in choice.summary()
+    # without the search (the model as modelled), spots that are faint in the crystal are
+    # predicted bright: wrong 'expected' verdicts, and misfits the search removes
+    plain = match_spots(P, cal, energy, atoms, gate_px=3.0, weak_fraction=wf)
+    assert plain.verdicts.count("expected") >= 3
+    assert position_misfits(plain) > choice.misfits
+    only_identity = match_orientations(P, cal, energy, atoms, gate_px=3.0, weak_fraction=wf,
+                                       operations=lat.point_group()[:1])
+    assert only_identity.label == "as modelled" and only_identity.result.verdicts == plain.verdicts
+
+
+def test_orientations_tie_for_a_candidate_without_atoms():
+    from surfgeo.measure.match import match_orientations
+
+    m = synthetic_measurement(4, max_area=4)
+    cal = Calibration(screen=m.screen, rms_px=1.0)
+    choice = match_orientations(m.spots, cal, m.energy, m.domains[0], m.lattice)
+    # positions of all domains are invariant under the lattice's point group: every orientation ties
+    assert choice.label == "as modelled" and choice.runner_up() is None
+    assert len({v for v in choice.tried.values()}) == 1
+    assert "fit equally well" in choice.summary()
+
+
+def test_cli_match_reports_the_orientation(tmp_path, capsys):
+    import json
+
+    from surfgeo.cli.main import main
+    from surfgeo.io import dump_json
+
+    energy = 80.0
+    atoms, lat, cal, truth, keep, _, model = _threefold_twin_measurement(energy, tmp_path)
+    rows = ["x,y,intensity"] + [f"{x:.4f},{y:.4f},{i:.6g}" for (x, y), i in
+                                zip(truth.pixels[keep], truth.intensity[keep], strict=True)]
+    (tmp_path / "spots.csv").write_text("\n".join(rows) + "\n")
+    dump_json(cal.to_dict(), tmp_path / "screen.json")
+    base = ["match", str(tmp_path / "spots.csv"), "--lattice", "Pt(111)", "--energy", "80",
+            "--model", str(model), "--calibration", str(tmp_path / "screen.json")]
+    assert main(base + ["--json", "-"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    o = data["orientation"]
+    assert o["chosen"] != "as modelled"
+    assert abs(o["tried"]["turned by 60 deg"]["r_factor"] - o["r_factor"]) < 1e-12
+    assert o["tried"]["as modelled"]["r_factor"] > o["r_factor"] + 0.05
+    assert o["next_best"] is not None and o["next_best"]["r_factor"] > o["r_factor"]
+    assert data["unexplained_count"] == 0 and data["matched_count"] == int(keep.sum())
+    assert main(base) == 0
+    out = capsys.readouterr().out
+    assert "orientation  turned by" in out and "next best" in out
+    assert main(base + ["--as-modelled", "--json", "-"]) == 0
+    assert "orientation" not in json.loads(capsys.readouterr().out)

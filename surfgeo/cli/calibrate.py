@@ -55,6 +55,7 @@ class Measurement:
     calibration: object = None  # a fixed Calibration for momentum lists
     notes: list = field(default_factory=list)
     usable: object = None  # ndarray (H, W) of bool for images: pixels outside the masks
+    intensities: object = None  # ndarray (N,) of measured intensities (NaN: unknown or saturated)
 
     def hide_masked(self, match):
         """A match result with its absent spots on masked pixels of the image called hidden."""
@@ -204,7 +205,7 @@ def load_measurement(
                     else "of the screen spec; give the image size with --screen sphere:size=WxH."
                 )
             )
-        return Measurement(P, str(p), screen)
+        return Measurement(P, str(p), screen, intensities=spots.intensity)
     # an image
     from surfgeo.measure.detect import detect_spots
     from surfgeo.measure.images import read_image
@@ -229,7 +230,9 @@ def load_measurement(
             "at least 3; check the image with 'surfgeo detect' (threshold, masks) or give a spot list."
         )
     notes = list(det.notes)
-    found = {"image": image.data, "notes": notes, "usable": masks.usable}
+    # saturated spots and spots touching a mask have intensities that are only lower bounds
+    inten = np.where(det.spots.saturated | det.spots.edge, np.nan, det.spots.intensity)
+    found = {"image": image.data, "notes": notes, "usable": masks.usable, "intensities": inten}
     if screen is not None:
         return Measurement(det.spots.positions, str(p), screen, **found)
     if "size" not in explicit and not spec.lower().endswith(".json"):

@@ -16,6 +16,15 @@ assignment on squared distances, pairs farther apart than the gate forbidden); t
 then refitted to every matched spot, integer and fractional order (a far longer lever arm than
 the first shell of integer spots), and the spots are paired again (--no-refit: not).
 
+Spot positions fix the crystal's azimuth only up to the substrate lattice's point group (6mm
+on a hexagonal lattice), while a model may be less symmetric (fcc(111) with adsorbates is
+threefold: its copy turned by 60 degrees has the same spots with other intensities). A model
+is therefore tried in every orientation the lattice allows, and the one with the fewest
+unexplained and 'expected' missing spots is kept, then the one whose kinematic intensities
+agree best with the measured ones (amplitude R factor; from the image, or the CSV's intensity
+column; ties: the first, 'as modelled' first). The report names it and the next best
+(--as-modelled: only the model's own orientation).
+
 Reported: matched spots with residuals in px and in 1/Å (parallel momentum), measured spots
 the candidate does not explain, and predicted spots on the screen that were not seen, each
 'extinct' (zero kinematic intensity, e.g. a glide-line extinction), 'weak' (below 5 % of the
@@ -62,6 +71,12 @@ def register(subparsers, common: argparse.ArgumentParser) -> None:
         help="use the calibration as it is (by default the screen is refitted to every matched spot, "
         "integer and fractional order, and the spots are matched again)",
     )
+    p.add_argument(
+        "--as-modelled",
+        action="store_true",
+        help="compare a --model only in its own azimuth (by default every orientation the substrate "
+        "lattice allows is tried and the best kept)",
+    )
     add_output_options(p, plot=True)
     add_contrast_option(p)
     p.set_defaults(func=run)
@@ -95,29 +110,39 @@ def run(args: argparse.Namespace) -> int:
     from surfgeo.cli.calibrate import begin, read_spots, write_report
     from surfgeo.io import dump_json
     from surfgeo.measure.calibrate import calibrate
-    from surfgeo.measure.match import match_spots, match_with_refit
+    from surfgeo.measure.match import match_orientations, match_spots, match_with_refit
 
     style, lattice, energy = begin(args)
     candidate = _candidate(args, lattice)
     m, cal = read_spots(args, energy)
     if cal is None:
         cal = calibrate(m.positions, lattice, energy, m.screen)
+    choice = None
+    if args.model and not args.as_modelled:
+        # the crystal's azimuth: every orientation the lattice allows, on the first calibration
+        choice = match_orientations(m.positions, cal, energy, candidate, lattice, usable=m.usable,
+                                    intensities=m.intensities, gate_px=args.gate, domains=not args.no_domains)
     if m.momentum or args.no_refit:
-        res = match_spots(
+        res = choice.result if choice is not None else match_spots(
             m.positions, cal, energy, candidate, lattice, gate_px=args.gate, domains=not args.no_domains
         )
     else:
         res, cal = match_with_refit(
-            m.positions, cal, energy, candidate, lattice, gate_px=args.gate, domains=not args.no_domains
+            m.positions, cal, energy, candidate, lattice, gate_px=args.gate, domains=not args.no_domains,
+            orientation=None if choice is None else choice.operation,
         )
     res = m.hide_masked(res)
     record = {"input": m.source, "calibration": cal.to_dict(), **res.to_dict(), "input_notes": m.notes}
+    if choice is not None:
+        record["orientation"] = choice.to_dict()
     if args.json != "-":
         from surfgeo.cli.calibrate import calibration_lines
 
         lines = [f"input        {m.source}: {len(m.positions)} spots at {energy:g} eV"]
         lines += calibration_lines(cal, lattice, [energy])
         lines += res.summary_lines()
+        if choice is not None:
+            lines.append(f"orientation  {choice.summary()}")
         lines += [f"note         {n}" for n in m.notes]
         write_report(lines)
     if args.json:

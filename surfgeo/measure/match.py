@@ -441,6 +441,268 @@ def masked_spots(predicted: PredictedSpots, usable) -> np.ndarray:
     return np.flatnonzero(predicted.visible & ~(on & usable[iy, ix]))
 
 
+# =============================================================================== crystal azimuth
+def orientation_label(operation) -> str:
+    """The crystal's azimuth in words: ``as modelled``, ``turned by 60 deg`` or ``mirrored across
+    the line at 30 deg from a1`` (None: ``identity``)."""
+    if operation is None:
+        return "identity"
+    if operation.is_rotation:
+        a = operation.angle_deg
+        return "as modelled" if abs(a) < 1e-9 or abs(a - 360) < 1e-9 else f"turned by {a:.0f} deg"
+    return f"mirrored across the line at {operation.angle_deg:.0f} deg from a1"
+
+
+def turn_prediction(predicted: PredictedSpots, operation, calibration: Calibration | ScreenGeometry
+                    ) -> PredictedSpots:
+    """A prediction turned by a lattice point operation (the crystal's azimuth on the screen).
+
+    Parameters
+    ----------
+    predicted : PredictedSpots
+    operation : surfgeo.lattice.lattice2d.PointOperation
+        Acts on the parallel momenta (Cartesian, ``k' = R k``); labels, intensities and
+        verdict inputs stay with their beams.
+    calibration : Calibration or ScreenGeometry
+        The screen the turned beams are put on.
+    """
+    cal = _as_calibration(calibration)
+    kp = predicted.k_parallel @ np.asarray(operation.cartesian).T
+    px = fast_pixels(cal.screen, kp, predicted.energy)
+    vis = on_screen(cal.screen, px, kp, wavenumber(predicted.energy))
+    return dataclasses.replace(predicted, k_parallel=kp, pixels=px, visible=vis)
+
+
+def amplitude_r_factor(measured, predicted) -> tuple[float, float]:
+    """Agreement of measured and predicted spot intensities, on amplitudes.
+
+    ``R = sum |F_m - c F_p| / sum F_m`` with ``F = sqrt(max(I, 0))`` and the scale ``c`` that
+    minimises ``sum (F_m - c F_p)^2``, i.e. ``c = sum F_m F_p / sum F_p^2``. R is 0 for
+    proportional intensities and insensitive to a common intensity scale (exposure, gain).
+    Amplitudes rather than intensities keep the weak fractional-order spots from being drowned
+    by the strong integer-order ones.
+
+    Parameters
+    ----------
+    measured, predicted : array_like, shape (n,)
+        Measured (any units) and predicted intensities of the same spots; a spot that was
+        predicted but not seen enters with measured intensity 0.
+
+    Returns
+    -------
+    r : float
+        The agreement factor (NaN without measured intensity).
+    scale : float
+        The scale ``c``.
+
+    References
+    ----------
+    The crystallographic residual R1 on structure-factor amplitudes, e.g. C. Giacovazzo (ed.),
+    *Fundamentals of Crystallography*, 3rd ed., Oxford University Press (2011), ch. 5.
+    """
+    fm = np.sqrt(np.clip(np.asarray(measured, dtype=float), 0.0, None))
+    fp = np.sqrt(np.clip(np.asarray(predicted, dtype=float), 0.0, None))
+    ok = np.isfinite(fm) & np.isfinite(fp)
+    fm, fp = fm[ok], fp[ok]
+    den = float(fp @ fp)
+    if fm.sum() <= 0:
+        return math.nan, math.nan
+    c = float(fm @ fp) / den if den > 0 else 0.0
+    return float(np.abs(fm - c * fp).sum() / fm.sum()), c
+
+
+def position_misfits(match: MatchResult) -> int:
+    """Measured spots the candidate does not explain plus predicted spots that should have been
+    seen and were not (verdict ``expected`` or ``unknown``; ``hidden``, ``weak`` and ``extinct``
+    spots are not counted)."""
+    return int(len(match.unexplained) + sum(1 for v in match.verdicts if v in ("expected", "unknown")))
+
+
+@dataclass(frozen=True, eq=False)
+class OrientationChoice:
+    """The crystal azimuth that fits best among the lattice's point operations.
+
+    Attributes
+    ----------
+    operation : PointOperation
+        The chosen operation (applied to the model's beams).
+    label : str
+        It in words (:func:`orientation_label`).
+    misfits : int
+        Its position misfits (:func:`position_misfits`, summed over the predictions).
+    r_factor : float
+        Its intensity agreement factor (NaN when no intensities were compared).
+    tried : dict
+        ``label -> (misfits, r_factor)`` of every operation tried.
+    result : object
+        What the evaluation returned for the chosen operation (e.g. a MatchResult).
+    """
+
+    operation: object
+    label: str
+    misfits: int
+    r_factor: float
+    tried: dict
+    result: object
+
+    @property
+    def key(self) -> tuple:
+        """The sort key of the choice: misfits first, then the R factor (rounded to 1e-9)."""
+        return _orientation_key(self.misfits, self.r_factor)
+
+    def runner_up(self) -> tuple[str, int, float] | None:
+        """The best orientation that is *worse* than the chosen one (label, misfits, R), or None
+        when every orientation ties (the model has the lattice's full symmetry)."""
+        worse = [(_orientation_key(m, r), lab, m, r) for lab, (m, r) in self.tried.items()
+                 if _orientation_key(m, r) > self.key]
+        if not worse:
+            return None
+        _, lab, m, r = min(worse, key=lambda t: t[0])
+        return lab, m, r
+
+    def summary(self) -> str:
+        """One line: the orientation chosen and how much better it is than the next one."""
+        def fmt(m, r):
+            return f"{m} misfit{'s' if m != 1 else ''}" + (f", R {r:.3f}" if math.isfinite(r) else "")
+
+        text = f"{self.label} ({fmt(self.misfits, self.r_factor)})"
+        nxt = self.runner_up()
+        if nxt is None:
+            return text + f"; all {len(self.tried)} lattice orientations fit equally well"
+        return text + f"; next best {nxt[0]} ({fmt(nxt[1], nxt[2])})"
+
+    def to_dict(self) -> dict:
+        nxt = self.runner_up()
+        return {
+            "chosen": self.label,
+            "misfits": self.misfits,
+            "r_factor": self.r_factor,
+            "tried": {lab: {"misfits": m, "r_factor": r} for lab, (m, r) in self.tried.items()},
+            "next_best": None if nxt is None
+            else {"orientation": nxt[0], "misfits": nxt[1], "r_factor": nxt[2]},
+        }
+
+
+def _orientation_key(misfits: int, r: float) -> tuple:
+    # rounded, so that orientations equivalent under the substrate's symmetry tie exactly and the
+    # first of them (the identity first) is kept
+    return (int(misfits), round(r, 9) if math.isfinite(r) else math.inf)
+
+
+def best_orientation(predictions, calibration: Calibration | ScreenGeometry, evaluate, operations
+                     ) -> OrientationChoice:
+    """Try a candidate in every crystal azimuth the substrate lattice allows; keep the best.
+
+    Spot positions fix the screen's azimuth only up to the point group of the substrate
+    *lattice* (6mm for a hexagonal one), while a model may have lower symmetry (fcc(111) with
+    adsorbates is threefold, 3m): its copy turned by 60 degrees predicts the same positions but
+    other intensities, so the extinct / weak verdicts and any intensity comparison depend on the
+    azimuth. Each operation is applied to the predicted beams (:func:`turn_prediction`) and
+    scored by ``evaluate``; the lowest ``(misfits, R)`` wins, ties going to the earlier
+    operation (the identity comes first).
+
+    Parameters
+    ----------
+    predictions : list of PredictedSpots
+        The candidate's predictions (e.g. one per image), as modelled.
+    calibration : Calibration or ScreenGeometry
+        The screen the turned beams are put on.
+    evaluate : callable
+        ``evaluate(turned_predictions) -> (misfits, r_factor, result)`` for one orientation.
+    operations : sequence of PointOperation
+        The operations tried, e.g. ``lattice.point_group()``.
+
+    Returns
+    -------
+    OrientationChoice
+    """
+    best = None
+    tried: dict = {}
+    for op in operations:
+        misfits, r, result = evaluate([turn_prediction(p, op, calibration) for p in predictions])
+        label = orientation_label(op)
+        tried[label] = (int(misfits), float(r))
+        key = _orientation_key(misfits, r)
+        if best is None or key < best[0]:
+            best = (key, op, label, int(misfits), float(r), result)
+    if best is None:
+        raise InputError("no crystal orientation to try: the list of lattice operations is empty.")
+    _, op, label, misfits, r, result = best
+    return OrientationChoice(op, label, misfits, r, tried, result)
+
+
+def match_orientations(
+    spots,
+    calibration: Calibration | ScreenGeometry,
+    energy_eV: float,
+    candidate,
+    lattice: Lattice2D | None = None,
+    *,
+    usable=None,
+    intensities=None,
+    operations=None,
+    gate_px: float | None = None,
+    weak_fraction: float = WEAK_FRACTION,
+    **kinematic,
+) -> OrientationChoice:
+    """Match a candidate in every lattice orientation (:func:`best_orientation`) to one spot list.
+
+    Each orientation is scored by its :func:`position_misfits` (with the absent spots on masked
+    pixels ``hidden`` when ``usable`` is given) and, with measured ``intensities``, by the
+    :func:`amplitude_r_factor` of the matched spots plus the visible absent ones (as zeros).
+
+    Parameters
+    ----------
+    spots, calibration, energy_eV, candidate, lattice, gate_px, weak_fraction, **kinematic
+        As for :func:`match_spots`.
+    usable : ndarray of bool, shape (H, W), optional
+        Usable pixels of the image (:func:`masked_spots`).
+    intensities : array_like, shape (N,), optional
+        Measured intensities of the spots.
+    operations : sequence of PointOperation, optional
+        Default: the point group of the candidate's substrate lattice (``lattice``, or the
+        superstructure's, or the slab's surface lattice).
+
+    Returns
+    -------
+    OrientationChoice
+        ``result`` is the :class:`MatchResult` in the chosen orientation.
+    """
+    cal = _as_calibration(calibration)
+    pred = predict_spots(cal, energy_eV, candidate, lattice, **kinematic)
+    if operations is None:
+        operations = _substrate_lattice(candidate, lattice).point_group()
+    meas_i = None if intensities is None else np.asarray(intensities, dtype=float).ravel()
+
+    def evaluate(preds):
+        m = match_spots(spots, cal, energy_eV, None, predicted=preds[0], gate_px=gate_px,
+                        weak_fraction=weak_fraction)
+        if usable is not None:
+            m = m.with_hidden(masked_spots(preds[0], usable))
+        r = math.nan
+        if meas_i is not None and preds[0].intensity is not None:
+            missing = np.array([j for j, v in zip(m.absent, m.verdicts, strict=True) if v != "hidden"],
+                               dtype=int)
+            meas = np.concatenate([meas_i[m.pairs[:, 0]], np.zeros(len(missing))])
+            pidx = np.concatenate([m.pairs[:, 1], missing]).astype(int)
+            r, _ = amplitude_r_factor(meas, preds[0].intensity[pidx])
+        return position_misfits(m), r, m
+
+    return best_orientation([pred], cal, evaluate, operations)
+
+
+def _substrate_lattice(candidate, lattice: Lattice2D | None) -> Lattice2D:
+    if lattice is not None:
+        return lattice
+    if isinstance(candidate, Superstructure):
+        return candidate.lattice
+    if hasattr(candidate, "get_positions"):
+        from surfgeo.slab.info import surface_info
+
+        return surface_info(candidate).lattice
+    raise InputError("a substrate lattice is needed to try the crystal orientations of a candidate.")
+
+
 #: Fewest matched spots a calibration is refitted to by :func:`match_with_refit`.
 MIN_REFIT_SPOTS = 6
 
@@ -453,6 +715,7 @@ def match_with_refit(
     lattice: Lattice2D | None = None,
     *,
     rounds: int = 2,
+    orientation=None,
     **options,
 ) -> tuple[MatchResult, Calibration]:
     """Match, refit the screen to every matched spot, and match again.
@@ -470,6 +733,9 @@ def match_with_refit(
         As for :func:`match_spots` (``predicted`` is not accepted: the screen changes).
     rounds : int
         Most refits.
+    orientation : PointOperation, optional
+        Turn the candidate's beams by this lattice operation first (the crystal azimuth chosen
+        by :func:`match_orientations`).
 
     Returns
     -------
@@ -485,6 +751,8 @@ def match_with_refit(
     match_options = {k: options.pop(k) for k in ("gate_px", "weak_fraction") if k in options}
     cal = _as_calibration(calibration)
     pred = predict_spots(cal, energy_eV, candidate, lattice, **options)
+    if orientation is not None:
+        pred = turn_prediction(pred, orientation, cal)
     res = match_spots(spots, cal, energy_eV, None, predicted=pred, **match_options)
     for _ in range(rounds):
         if len(res.pairs) < MIN_REFIT_SPOTS:
@@ -531,5 +799,12 @@ __all__ = [
     "match_spots",
     "match_with_refit",
     "masked_spots",
+    "orientation_label",
+    "turn_prediction",
+    "amplitude_r_factor",
+    "position_misfits",
+    "OrientationChoice",
+    "best_orientation",
+    "match_orientations",
     "WEAK_FRACTION",
 ]

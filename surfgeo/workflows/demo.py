@@ -48,6 +48,7 @@ from typing import Any
 import numpy as np
 
 from surfgeo.errors import FileFormatError, InputError
+from surfgeo.measure.match import amplitude_r_factor, orientation_label, turn_prediction
 
 #: Folder of the shipped demo data.
 DEMO_DATA = Path(__file__).resolve().parent.parent / "data" / "demo"
@@ -269,7 +270,7 @@ class CandidateFit:
             "matrix": self.matrix,
             "wood": self.wood,
             "domains": self.n_domains,
-            "orientation": _op_text(self.orientation),
+            "orientation": orientation_label(self.orientation),
             "orientation_r_factors": self.orientation_r,
             "matched": self.matched,
             "unexplained": self.unexplained,
@@ -416,58 +417,11 @@ class DemoResult:
 
 
 # =============================================================================== helpers
-def _op_text(op) -> str:
-    if op is None:
-        return "identity"
-    if op.is_rotation:
-        a = op.angle_deg
-        return "as modelled" if abs(a) < 1e-9 or abs(a - 360) < 1e-9 else f"turned by {a:.0f} deg"
-    return f"mirrored across the line at {op.angle_deg:.0f} deg from a1"
-
-
 def _index_dict(result) -> dict:
     """The indexing of one image for the JSON results (without the repeated calibration)."""
     d = result.to_dict()
     d.pop("calibration", None)
     return d
-
-
-def amplitude_r_factor(measured, predicted) -> tuple[float, float]:
-    """Agreement of measured and predicted spot intensities, on amplitudes.
-
-    ``R = sum |F_m - c F_p| / sum F_m`` with ``F = sqrt(max(I, 0))`` and the scale ``c`` that
-    minimises ``sum (F_m - c F_p)^2``, i.e. ``c = sum F_m F_p / sum F_p^2``. R is 0 for
-    proportional intensities and insensitive to a common intensity scale (exposure, gain).
-    Amplitudes rather than intensities keep the weak fractional-order spots from being drowned
-    by the strong integer-order ones.
-
-    Parameters
-    ----------
-    measured, predicted : array_like, shape (n,)
-        Measured (any units) and predicted intensities of the same spots; a spot that was
-        predicted but not seen enters with measured intensity 0.
-
-    Returns
-    -------
-    r : float
-        The agreement factor (NaN without measured intensity).
-    scale : float
-        The scale ``c``.
-
-    References
-    ----------
-    The crystallographic residual R1 on structure-factor amplitudes, e.g. C. Giacovazzo (ed.),
-    *Fundamentals of Crystallography*, 3rd ed., Oxford University Press (2011), ch. 5.
-    """
-    fm = np.sqrt(np.clip(np.asarray(measured, dtype=float), 0.0, None))
-    fp = np.sqrt(np.clip(np.asarray(predicted, dtype=float), 0.0, None))
-    ok = np.isfinite(fm) & np.isfinite(fp)
-    fm, fp = fm[ok], fp[ok]
-    den = float(fp @ fp)
-    if fm.sum() <= 0:
-        return math.nan, math.nan
-    c = float(fm @ fp) / den if den > 0 else 0.0
-    return float(np.abs(fm - c * fp).sum() / fm.sum()), c
 
 
 def load_scenario(data_dir: str | Path | None = None) -> tuple[dict, Path]:
@@ -514,17 +468,6 @@ def analyse_image(path: Path, energy: float) -> ImageAnalysis:
     return ImageAnalysis(path.name, float(energy), img.data, masks, det)
 
 
-def turned(pred, op, calibration):
-    """A prediction turned by a lattice point operation (the crystal's azimuth on the screen)."""
-    from surfgeo.diffraction.electron import wavenumber
-    from surfgeo.measure.calibrate import fast_pixels, on_screen
-
-    kp = pred.k_parallel @ np.asarray(op.cartesian).T
-    px = fast_pixels(calibration.screen, kp, pred.energy)
-    vis = on_screen(calibration.screen, px, kp, wavenumber(pred.energy))
-    return dataclasses.replace(pred, k_parallel=kp, pixels=px, visible=vis)
-
-
 def fit_image(image: ImageAnalysis, pred, calibration) -> ImageFit:
     """Match one prediction to one image and compare the intensities."""
     from surfgeo.measure.match import masked_spots, match_spots
@@ -562,24 +505,20 @@ def _total_r(fits: list[ImageFit]) -> float:
 
 
 def _orientations(slab, images: list[ImageAnalysis], calibration, ops) -> tuple:
-    """Every lattice orientation of a candidate at one calibration; returns the best and all R."""
-    from surfgeo.measure.match import predict_spots
+    """Every lattice orientation of a candidate at one calibration
+    (:func:`surfgeo.measure.match.best_orientation`); returns the best key, operation, fits and all R."""
+    from surfgeo.measure.match import best_orientation, predict_spots
 
     preds = [predict_spots(calibration, im.energy, slab) for im in images]
-    best = None
-    tried: dict[str, float] = {}
-    for op in ops:
-        fits = [fit_image(im, turned(p, op, calibration), calibration)
-                for im, p in zip(images, preds, strict=True)]
+
+    def evaluate(turned_preds):
+        fits = [fit_image(im, p, calibration) for im, p in zip(images, turned_preds, strict=True)]
         misfits = sum(len(f.match.unexplained) + f.absent_expected for f in fits)
-        r = _total_r(fits)
-        tried[_op_text(op)] = r
-        # rounded, so that orientations equivalent under the substrate's symmetry tie exactly and the
-        # first of them (the identity first) is kept
-        key = (misfits, round(r, 9) if math.isfinite(r) else math.inf)
-        if best is None or key < best[0]:
-            best = (key, op, fits)
-    return best[0], best[1], best[2], tried
+        return misfits, _total_r(fits), fits
+
+    choice = best_orientation(preds, calibration, evaluate, ops)
+    tried = {label: r for label, (_, r) in choice.tried.items()}
+    return choice.key, choice.operation, choice.result, tried
 
 
 class OffsetCalibrations:
@@ -787,7 +726,7 @@ def next_measurement(best: CandidateFit, calibration, energy: float, masks=None)
     pat = slab_pattern(best.slab, cal.energy(energy))
     op = np.asarray(best.orientation.cartesian)
     pat = dataclasses.replace(pat, k_parallel=pat.k_parallel @ op.T, g=pat.g @ op.T)
-    pred = turned(predict_spots(cal, energy, best.slab), best.orientation, cal)
+    pred = turn_prediction(predict_spots(cal, energy, best.slab), best.orientation, cal)
     return pat, pred, screen
 
 

@@ -465,7 +465,8 @@ def _sha256(path: Path) -> str:
 def render_html(result, figures: dict, others: dict, data: dict) -> str:
     """The report as one self-contained HTML page (figures embedded as base64 PNG)."""
     from surfgeo import __version__
-    from surfgeo.workflows.demo import CAVEATS, SYNTHETIC_LABEL, _op_text
+    from surfgeo.measure.match import orientation_label
+    from surfgeo.workflows.demo import CAVEATS, SYNTHETIC_LABEL
 
     sc = result.scenario
     best = result.best
@@ -493,7 +494,8 @@ def render_html(result, figures: dict, others: dict, data: dict) -> str:
             "energies. The decision rests on the kinematic intensities.</p>")
     add(f"<p>Best model: <b>{_e(best.name)}</b> (<code>{_e(best.file)}</code>), superstructure "
         f"{_e(best.wood or best.matrix)} with {best.n_domains} domain(s); energy offset "
-        f"{best.energy_offset:+.2f} eV; crystal azimuth on the screen: {_e(_op_text(best.orientation))} "
+        f"{best.energy_offset:+.2f} eV; crystal azimuth on the screen: "
+        f"{_e(orientation_label(best.orientation))} "
         "(orientations that differ by a symmetry of the substrate give the same pattern; the spot "
         "positions cannot tell the crystal from its copy turned by 60\u00b0, the intensities can).</p>")
 
