@@ -315,3 +315,22 @@ def test_amplitude_r_factor_ignores_the_scale_and_negative_noise():
     assert r1 == pytest.approx(r2)
     r3, _ = amplitude_r_factor(np.append(m, -5.0), np.append(p, 0.0))  # a slightly negative blank
     assert r3 == pytest.approx(r1)
+
+
+def test_spot_map_carries_the_synthetic_label(demo, tmp_path, monkeypatch):
+    import surfgeo.plot.spotmap as spotmap
+
+    figures = []
+
+    def keep(fig, path, force=False):
+        figures.append(fig)
+
+    monkeypatch.setattr(spotmap, "save_figure", keep)
+    report_mod.save_spot_map(demo, tmp_path / "map.png")
+    (fig,) = figures
+    texts = [" ".join(t.get_text().split()) for t in fig.texts]
+    assert any(t == " ".join(SYNTHETIC_LABEL.split()) for t in texts), texts
+    # without a footer, the figure says nothing about synthetic data (the label comes from the demo)
+    figures.clear()
+    spotmap.plot_pattern(demo.next_pattern, tmp_path / "plain.png", screen=demo.map_screen)
+    assert not any("SYNTHETIC" in t.get_text() for t in figures[0].texts)

@@ -293,7 +293,8 @@ def _draw_shadow(ax, screen) -> None:
         ax.add_patch(Polygon(pts, closed=True, color="#0b0f1a", zorder=2))
 
 
-def plot_pattern(pattern, path, screen=None, force: bool = False, view: str = "both") -> None:
+def plot_pattern(pattern, path, screen=None, force: bool = False, view: str = "both",
+                 footer: str | None = None) -> None:
     """Write a spot-map figure (PNG or SVG by the ending of ``path``).
 
     Parameters
@@ -303,6 +304,9 @@ def plot_pattern(pattern, path, screen=None, force: bool = False, view: str = "b
     screen : ScreenGeometry, optional
         Draw the screen panel with this model (needed for ``view`` "screen" or "both").
     view : {"both", "kspace", "screen"}
+    footer : str, optional
+        A note printed in bold along the bottom of the figure, wrapped to the figure's width
+        (e.g. the label of synthetic data), below the note on what the intensities mean.
     """
     panels = (
         ["kspace", "screen"]
@@ -326,7 +330,14 @@ def plot_pattern(pattern, path, screen=None, force: bool = False, view: str = "b
     )
     if pattern.intensity is not None and pattern.incidence[0] > 0 and pattern.extinct.any():
         note += "; hollow (kinematically extinct) spots off normal incidence are not predictions"
-    fig.text(0.01, 0.01, note, fontsize=7, color="#555555")
+    y = 0.01
+    if footer:
+        import textwrap
+
+        lines = textwrap.wrap(" ".join(str(footer).split()), width=int(30 * fig.get_figwidth()))
+        fig.text(0.01, y, "\n".join(lines), fontsize=7, fontweight="bold", color="#7a1f1f", va="bottom")
+        y += 0.025 * len(lines)
+    fig.text(0.01, y, note, fontsize=7, color="#555555", va="bottom")
     fig.subplots_adjust(right=0.83, wspace=0.25)
     save_figure(fig, path, force)
 

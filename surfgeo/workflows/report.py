@@ -382,11 +382,12 @@ def save_spot_map(result, path, dpi: int = 110) -> None:
     """The expected-spot map at the next energy (k-space and the calibrated screen).
 
     Drawn by :func:`surfgeo.plot.spotmap.plot_pattern`; its title gives the energy after the
-    fitted offset.
+    fitted offset, and its footer the scenario's synthetic label.
     """
     from surfgeo.plot.spotmap import plot_pattern
+    from surfgeo.workflows.demo import SYNTHETIC_LABEL
 
-    plot_pattern(result.next_pattern, path, screen=result.map_screen)
+    plot_pattern(result.next_pattern, path, screen=result.map_screen, footer=SYNTHETIC_LABEL)
 
 
 def slab_picture(result, repeat: int = 3):
