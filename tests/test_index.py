@@ -336,3 +336,51 @@ def test_detail_and_counts_use_the_widened_acceptance():
     assert len(match.pairs) == best.matched
     assert np.all(match.predicted.visible[match.pairs[:, 1]])
     assert positions_coincide(match.predicted.pixels[match.predicted.visible], m.truth_px, m.screen)
+
+
+# --------------------------------------------------------------------------- image masks
+def test_spots_hidden_by_the_image_mask_are_neither_absent_nor_matched():
+    # a p(2x2) pattern with every spot detected, no strays; then the right part of the image is
+    # masked (a holder, a damaged screen region): a detector with that mask reports only the rest
+    m = synthetic_measurement(11, lattice=Lattice2D.hexagonal(2.77), matrix=[[2, 0], [0, 2]], energy=120.0,
+                              missing_fraction=0.0, strays=(0, 0))
+    cal = Calibration(screen=m.screen, rms_px=1.0)
+    h, w = m.screen.height, m.screen.width
+    edge = 0.65 * w
+    usable = np.ones((h, w), dtype=bool)
+    usable[:, int(math.ceil(edge)):] = False
+    P = m.spots.positions
+    seen = P[P[:, 0] < edge - 3.0]
+    n_under = len(P) - len(seen)
+    assert n_under >= 5
+    opts = dict(calibration=cal, max_area=4, top=3, show_progress=False)
+    full = IX.index_pattern(P, m.lattice, m.energy, **opts).candidates[0]
+    blind = IX.index_pattern(seen, m.lattice, m.energy, **opts).candidates[0]
+    masked = IX.index_pattern(seen, m.lattice, m.energy, usable=usable, **opts).candidates[0]
+    for c in (full, blind, masked):
+        assert positions_coincide(c.predicted_px, m.truth_px, m.screen)
+        assert c.unexplained == 0
+    # without the mask, every spot under it reads as a spot that was not seen ...
+    assert blind.matched == full.matched - n_under
+    assert blind.absent == full.absent + n_under
+    # ... with it, the hidden spots are neither absent nor matched, as match.py calls them 'hidden'
+    assert masked.matched == blind.matched
+    assert masked.absent <= full.absent
+    assert masked.score < blind.score
+    from surfgeo.measure.match import masked_spots, match_spots, predict_spots
+
+    pred = predict_spots(cal, m.energy, [[2, 0], [0, 2]], m.lattice)
+    res = match_spots(seen, cal, m.energy, None, predicted=pred).with_hidden(masked_spots(pred, usable))
+    expected_absent = sum(v != "hidden" for v in res.verdicts)
+    # the index counts an absent spot only when it is also 2 px clear of the masks and image edges
+    assert masked.absent <= expected_absent
+
+
+def test_clear_pixels_keeps_a_margin_from_the_masks():
+    usable = np.ones((20, 30), dtype=bool)
+    usable[5:8, 10:12] = False
+    clear = IX.clear_pixels(usable, margin_px=2.0)
+    assert not clear[:2].any() and not clear[:, -2:].any()  # the image border
+    assert not clear[5, 8] and clear[5, 7] and not clear[9, 11] and clear[10, 11]
+    with pytest.raises(InputError):
+        IX.clear_pixels(np.ones(5, dtype=bool))

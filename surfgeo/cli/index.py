@@ -147,6 +147,7 @@ def run(args: argparse.Namespace) -> int:
         max_area=args.max_area,
         top=args.top,
         gate_px=args.gate,
+        usable=m.usable,
     )
     res.notes.extend(m.notes)
     res.match = m.hide_masked(res.match)

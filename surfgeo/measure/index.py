@@ -34,7 +34,10 @@ A negative log-likelihood with a parsimony prior, in natural-log units:
   on a 512 px screen. Unexplained spots weigh heavily.
 * A predicted spot on the screen with nothing measured there costs ``w_a = -ln(1 - q)``
   (1.9 for q = 0.85): spots can be weak or extinct, so they weigh lightly -- but a cell too
-  large for the pattern predicts many spots that are not there.
+  large for the pattern predicts many spots that are not there. On image input with its mask
+  (``usable``) only spots the image could show count: one on the gun's shadow or holder,
+  beyond the screen's rim, or within ``EDGE_MARGIN_PX`` of them is neither absent nor
+  matched (the ``hidden`` verdict of :mod:`surfgeo.measure.match`).
 * ``ln(area)`` is a prior preferring smaller cells (probability proportional to 1 / area),
   which decides between candidates that predict the same spots.
 
@@ -400,9 +403,11 @@ class _Context:
     sigma: float
     gate: float
     offset: float = 0.0
+    clear_px: np.ndarray | None = None  # (H, W) bool: usable pixels EDGE_MARGIN_PX clear of the masks
 
 
-def _context(P, cal: Calibration, lattice: Lattice2D, energy: float, gate_px, sigma_px) -> _Context:
+def _context(P, cal: Calibration, lattice: Lattice2D, energy: float, gate_px, sigma_px,
+             clear_px: np.ndarray | None = None) -> _Context:
     """Measured spots in label space under one calibration, with the local Jacobians.
 
     The acceptance used for predictions is widened, if needed, to reach the outermost measured
@@ -441,7 +446,9 @@ def _context(P, cal: Calibration, lattice: Lattice2D, energy: float, gate_px, si
         else max(cal.rms_px / math.sqrt(2.0) if math.isfinite(cal.rms_px) else 1.0, MIN_SIGMA_PX)
     )
     gate = float(gate_px) if gate_px is not None else max(GATE_SIGMAS * sigma * math.sqrt(2.0), MIN_GATE_PX)
-    return _Context(P, h, J, ok, integer_dist, screen, E, k, lattice, sigma, gate, cal.energy_offset)
+    return _Context(
+        P, h, J, ok, integer_dist, screen, E, k, lattice, sigma, gate, cal.energy_offset, clear_px
+    )
 
 
 def _hnf_residuals(ctx: _Context, table: _Table, chunk: int = 128) -> np.ndarray:
@@ -538,13 +545,16 @@ def _grids(ctx: _Context, areas) -> dict:
 
     Grid points ``(i / n, j / n)`` inside the acceptance disc are put on the screen; those on
     it are kept with their residue code ``(i mod n) n + (j mod n)``, and ``counts`` holds the
-    number of clearly visible ones (``EDGE_MARGIN_PX`` from an edge) per residue.
+    number of clearly visible ones (``EDGE_MARGIN_PX`` from an edge, and from the image's
+    masks when ``ctx.clear_px`` is known) per residue.
     """
     areas = tuple(int(a) for a in areas)
     kmax = ctx.k * math.sin(math.radians(ctx.screen.acceptance_deg))
     num, kp, code, gcode, bounds, offsets = _grid_labels(ctx.lattice, areas, kmax)
     px = _label_pixels(ctx, kp)
     vis, clear = _visible_and_clear(ctx.screen, px, EDGE_MARGIN_PX)
+    if ctx.clear_px is not None:
+        clear &= _on_pixels(ctx.clear_px, px)
     counts = np.bincount(gcode[clear], minlength=int(offsets[-1]))
     out = {}
     for i, n in enumerate(areas):
@@ -596,6 +606,40 @@ def _visible_and_clear(
     return vis, clear
 
 
+def _on_pixels(mask: np.ndarray, px: np.ndarray) -> np.ndarray:
+    """True where the position ``px`` (n, 2) falls on a True pixel of ``mask`` (H, W)."""
+    h, w = mask.shape
+    x, y = px[:, 0], px[:, 1]
+    inside = np.isfinite(x) & np.isfinite(y) & (x > -0.5) & (x < w - 0.5) & (y > -0.5) & (y < h - 0.5)
+    ix = np.clip(np.rint(np.nan_to_num(x)).astype(np.int64), 0, w - 1)
+    iy = np.clip(np.rint(np.nan_to_num(y)).astype(np.int64), 0, h - 1)
+    return inside & mask[iy, ix]
+
+
+def clear_pixels(usable, margin_px: float = EDGE_MARGIN_PX) -> np.ndarray:
+    """Usable pixels at least ``margin_px`` from any unusable pixel and from the image border.
+
+    Parameters
+    ----------
+    usable : ndarray of bool, shape (H, W)
+        True where the image can be trusted (e.g. ``MaskSet.usable`` of :mod:`surfgeo.measure.masks`:
+        outside the gun's shadow and holder, inside the screen).
+    margin_px : float
+        Margin, px.
+    """
+    from scipy.ndimage import binary_erosion
+
+    usable = np.asarray(usable)
+    if usable.ndim != 2 or usable.size == 0:
+        raise InputError(f"the usable-pixel mask must be a 2D image-sized array, got shape {usable.shape}.")
+    r = max(int(math.ceil(margin_px)), 0)
+    if r == 0:
+        return usable.astype(bool)
+    yy, xx = np.mgrid[-r : r + 1, -r : r + 1]
+    disc = xx * xx + yy * yy <= margin_px * margin_px
+    return binary_erosion(usable.astype(bool), structure=disc, border_value=0)
+
+
 def _weights(ctx: _Context, q: float, strays: float) -> tuple[float, float]:
     rim = float(ctx.screen.radial(np.array(math.radians(ctx.screen.acceptance_deg)))) * ctx.screen.scale
     area = min(math.pi * rim * rim, float(ctx.screen.width * ctx.screen.height))
@@ -626,6 +670,7 @@ def index_pattern(
     detail: bool = True,
     n_calibrations: int = 12,
     refine: bool | None = None,
+    usable: np.ndarray | None = None,
 ) -> IndexResult:
     """Index a measured pattern: rank the superstructures that explain the spots.
 
@@ -667,6 +712,12 @@ def index_pattern(
         by the integer spots) is kept unless another's best candidate scores lower by more
         than :data:`CALIBRATION_SWITCH`. This settles patterns whose integer spots alone are
         ambiguous (few integer spots among dense fractional ones).
+    usable : ndarray of bool, shape (H, W), optional
+        The image's usable pixels (outside the gun's shadow and holder and inside the screen,
+        e.g. ``MaskSet.usable``). A predicted spot on a masked pixel (or within
+        :data:`EDGE_MARGIN_PX` of one) could not have been seen: it is not counted absent (nor
+        matched), as :func:`surfgeo.measure.match.masked_spots` calls it ``hidden``. Without
+        it, only the screen model's gun shadow and the image edges are known.
 
     Returns
     -------
@@ -676,6 +727,7 @@ def index_pattern(
 
     P = _positions(spots)
     max_area = _check_area(max_area)
+    clear_px = None if usable is None else clear_pixels(usable)
     table = _table(lattice, max_area)
     if not (0.0 < seen_probability < 1.0):
         raise InputError(
@@ -697,12 +749,14 @@ def index_pattern(
     steps = _progress(range(len(cals)), total=len(cals), desc="indexing", enabled=show_progress)
     for i in steps:
         run = _score_all(
-            P, cals[i], lattice, energy_eV, table, gate_px, sigma_px, seen_probability, expected_strays
+            P, cals[i], lattice, energy_eV, table, gate_px, sigma_px, seen_probability, expected_strays,
+            clear_px,
         )
         # a refit needs spots to rest on: skip calibrations whose best candidate explains few
         if refine and run.matched[int(np.argmin(run.scores))] >= max(6, REFINE_FRACTION * len(P)):
             run = _refined(
-                run, P, lattice, energy_eV, table, gate_px, sigma_px, seen_probability, expected_strays
+                run, P, lattice, energy_eV, table, gate_px, sigma_px, seen_probability, expected_strays,
+                clear_px=clear_px,
             )
         refined[i] = run
     # the first calibration is the one the integer spots (and the pattern's inversion
@@ -721,7 +775,8 @@ def index_pattern(
             s_new = max(math.sqrt(float(np.median(r * r)) / (2 * math.log(2.0))), MIN_SIGMA_PX)
             if abs(s_new / run.ctx.sigma - 1.0) > 0.1:
                 run = _score_all(
-                    P, run.cal, lattice, energy_eV, table, gate_px, s_new, seen_probability, expected_strays
+                    P, run.cal, lattice, energy_eV, table, gate_px, s_new, seen_probability, expected_strays,
+                    clear_px,
                 )
     calibration, ctx, grids, best = run.cal, run.ctx, run.grids, run.best
     scores, matched, absent, visible, rms = run.scores, run.matched, run.absent, run.visible, run.rms
@@ -815,9 +870,9 @@ class _Run:
     w_a: float
 
 
-def _score_all(P, cal, lattice, energy, table, gate_px, sigma_px, q, strays) -> _Run:
+def _score_all(P, cal, lattice, energy, table, gate_px, sigma_px, q, strays, clear_px=None) -> _Run:
     """Score every candidate of ``table`` under one calibration (module docstring)."""
-    ctx = _context(P, cal, lattice, energy, gate_px, sigma_px)
+    ctx = _context(P, cal, lattice, energy, gate_px, sigma_px, clear_px)
     w_u, w_a = _weights(ctx, q, strays)
     resid = _hnf_residuals(ctx, table)
     areas = sorted({orb.area for orb in table.orbits})
@@ -863,7 +918,8 @@ def _matched_labels(run: _Run, table: _Table, o: int) -> tuple[np.ndarray, np.nd
     return idx, labels
 
 
-def _refined(run: _Run, P, lattice, energy, table, gate_px, sigma_px, q, strays, rounds: int = 2) -> _Run:
+def _refined(run: _Run, P, lattice, energy, table, gate_px, sigma_px, q, strays, rounds: int = 2,
+             clear_px=None) -> _Run:
     """The run again after refitting its calibration to all spots of its best candidate,
     repeated while the best score drops (each round matches more spots farther out)."""
     from surfgeo.measure.calibrate import refine_calibration
@@ -877,7 +933,7 @@ def _refined(run: _Run, P, lattice, energy, table, gate_px, sigma_px, q, strays,
             cal = refine_calibration(run.cal, P[idx], labels @ lattice.reciprocal, energy)
         except InputError:  # pragma: no cover - defensive
             return run
-        new = _score_all(P, cal, lattice, energy, table, gate_px, sigma_px, q, strays)
+        new = _score_all(P, cal, lattice, energy, table, gate_px, sigma_px, q, strays, clear_px)
         if not new.scores.min() < run.scores.min() - 1.0:
             return new if new.scores.min() < run.scores.min() else run
         run = new
@@ -1387,6 +1443,8 @@ def _overlayer_support(ctx, G, ops, tree, kmax, return_pairs: bool = False):
             continue
         px = fast_pixels(ctx.screen, g, ctx.E)
         vis = on_screen(ctx.screen, px, g, ctx.k, margin=EDGE_MARGIN_PX)
+        if ctx.clear_px is not None:
+            vis &= _on_pixels(ctx.clear_px, px)
         dist, j = tree.query(np.nan_to_num(px, nan=-1e6), k=1, distance_upper_bound=ctx.gate)
         hit = dist <= ctx.gate
         for t in np.flatnonzero(hit):
@@ -1515,5 +1573,6 @@ __all__ = [
     "IndexCandidate",
     "IndexResult",
     "candidate_count",
+    "clear_pixels",
     "index_pattern",
 ]

@@ -674,11 +674,13 @@ def same_position_groups(candidates: list[CandidateFit], images: list[ImageAnaly
 
 
 def _index_step(images: list[ImageAnalysis], calibration, lattice, max_area: int) -> list:
-    """Index each image's spots on the joint calibration (:func:`surfgeo.measure.index.index_pattern`)."""
+    """Index each image's spots on the joint calibration (:func:`surfgeo.measure.index.index_pattern`);
+    predicted spots on the image's masks (gun shadow and holder, beyond the rim) are not counted absent."""
     from surfgeo.measure.index import index_pattern
 
     return [index_pattern(im.spots, lattice, im.energy, calibration=calibration, max_area=max_area,
-                          top=INDEX_TOP, show_progress=False, detail=False) for im in images]
+                          top=INDEX_TOP, show_progress=False, detail=False, usable=im.usable)
+            for im in images]
 
 
 def shadow_geometry(masks, screen) -> tuple[float, float | None]:
