@@ -194,7 +194,12 @@ def _annotate(ax, xy, pattern, colour, limit: int = 90, offset=(4, 4)) -> None:
 def _title(pattern) -> str:
     inc = pattern.incidence
     where = "normal incidence" if inc[0] == 0 else f"incidence {inc[0]:g}\u00b0 at azimuth {inc[1]:g}\u00b0"
-    return f"{pattern.energy:g} eV, {where}"
+    return f"{_energy_text(pattern.energy)} eV, {where}"
+
+
+def _energy_text(energy: float) -> str:
+    """An energy for a title: up to 0.1 eV precision, no trailing zeros (161.504 -> 161.5)."""
+    return f"{round(float(energy), 1):g}"
 
 
 def acceptance_edge(energy: float, theta_max: float, incidence_xy, n: int = 721) -> np.ndarray:
@@ -390,7 +395,7 @@ def plot_trajectories(sweep, screen, path, force: bool = False) -> None:
     fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, label="energy (eV)", shrink=0.8)
     where = _title(sweep.base).split(", ", 1)[1]
     ax.set_title(
-        f"Spot trajectories {e.min():g}\u2013{e.max():g} eV ({where})\n"
+        f"Spot trajectories {_energy_text(e.min())}\u2013{_energy_text(e.max())} eV ({where})\n"
         "ringed dot: a beam enters the screen; label (onset) at the highest energy",
         fontsize=9,
     )
