@@ -22,20 +22,11 @@ imports).
 
 from __future__ import annotations
 
-import statistics
 import sys
 import time
 import tracemalloc
 
-
-def _median_time(fn, repeat: int) -> float:
-    fn()  # warm-up (imports, caches) for both sides alike
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
+from benchtools import median_time
 
 
 def main(quick: bool = False) -> list[dict]:
@@ -50,9 +41,9 @@ def main(quick: bool = False) -> list[dict]:
     rows: list[dict] = []
     for hkl in [(5, 3, 3), (9, 9, 7), (1, 1, 0)]:
         ours = surface_slab(pt, hkl, layers=20, size=(10, 10))
-        t_ours = _median_time(lambda h=hkl: surface_slab(pt, h, layers=20, size=(10, 10)), repeat)
+        t_ours = median_time(lambda h=hkl: surface_slab(pt, h, layers=20, size=(10, 10)), repeat)
         ref = surface(pt_ase, hkl, 20, vacuum=5.0).repeat((10, 10, 1))
-        t_ase = _median_time(lambda h=hkl: surface(pt_ase, h, 20, vacuum=5.0).repeat((10, 10, 1)), repeat)
+        t_ase = median_time(lambda h=hkl: surface(pt_ase, h, 20, vacuum=5.0).repeat((10, 10, 1)), repeat)
         face = "".join(str(v) for v in hkl)
         rows.append({
             "benchmark": f"build Pt({face}) 20 layers 10x10 vs ase.build.surface(layers=20)",
@@ -67,7 +58,7 @@ def main(quick: bool = False) -> list[dict]:
             clear_caches()
             surface_slab(pt, h, layers=20, size=(10, 10))
 
-        t_cold = _median_time(cold, repeat)
+        t_cold = median_time(cold, repeat)
         rows.append({
             "benchmark": f"first build of Pt({face}) 20 layers 10x10 (caches cleared) vs ase.build.surface",
             "measured": f"{t_cold * 1e3:.2f} ms ({len(ours)} atoms)",
@@ -79,7 +70,7 @@ def main(quick: bool = False) -> list[dict]:
         n_unit = len(surface(pt_ase, hkl, 1, vacuum=5.0))
         ase_layers = max(1, round(len(ours) / 100 / n_unit))
         ref2 = surface(pt_ase, hkl, ase_layers, vacuum=5.0).repeat((10, 10, 1))
-        t_ase2 = _median_time(
+        t_ase2 = median_time(
             lambda h=hkl, n=ase_layers: surface(pt_ase, h, n, vacuum=5.0).repeat((10, 10, 1)), repeat
         )
         rows.append({
@@ -94,7 +85,7 @@ def main(quick: bool = False) -> list[dict]:
     side = 32 if quick else 100
     small_side = max(1, round(side / 10 ** 0.5))
     layers = 10
-    t_small = _median_time(
+    t_small = median_time(
         lambda: surface_slab(pt, (1, 1, 1), layers=layers, size=(small_side, small_side)), 3
     )
     n_small = layers * small_side * small_side
@@ -104,9 +95,9 @@ def main(quick: bool = False) -> list[dict]:
     t_big = time.perf_counter() - t0
     _, peak = tracemalloc.get_traced_memory()
     tracemalloc.stop()
-    t_big_clean = _median_time(lambda: surface_slab(pt, (1, 1, 1), layers=layers, size=(side, side)), 1)
+    t_big_clean = median_time(lambda: surface_slab(pt, (1, 1, 1), layers=layers, size=(side, side)), 1)
     a_pt = pt.info["surfgeo_bulk"]["a"]
-    t_ase_big = _median_time(lambda: fcc111("Pt", (side, side, layers), a=a_pt, vacuum=5.0), 1)
+    t_ase_big = median_time(lambda: fcc111("Pt", (side, side, layers), a=a_pt, vacuum=5.0), 1)
     rows.append({
         "benchmark": f"build Pt(111) {len(big)} atoms ({side}x{side}, {layers} layers): time and peak memory "
                      "vs ase.build.fcc111 with the same atoms",

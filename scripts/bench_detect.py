@@ -23,10 +23,10 @@ Run ``python scripts/bench_detect.py [--quick]``.
 from __future__ import annotations
 
 import sys
-import time
 from pathlib import Path
 
 import numpy as np
+from benchtools import best_time_and_result as timed
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -49,15 +49,6 @@ def _scenes(size: int, count: int, n_spots: int, sigma: float, seed: int = 12345
                              sample_type="uint16", seed=rng)
         out.append((syn, image_from_array(syn.image, source="synthetic")))
     return out
-
-
-def _best(fn, repeat: int) -> tuple[float, object]:
-    best, result = float("inf"), None
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        result = fn()
-        best = min(best, time.perf_counter() - t0)
-    return best, result
 
 
 def _recall_precision(syn, positions, claimed, radius):
@@ -98,7 +89,7 @@ def main(quick: bool = False) -> list[dict]:
     t_mask = []
     masks = []
     for _, img in scenes:
-        t, m = _best(lambda img=img: build_mask(img.data), max(1, repeat // 2))
+        t, m = timed(lambda img=img: build_mask(img.data), max(1, repeat // 2))
         t_mask.append(t)
         masks.append(m.usable)
 
@@ -106,11 +97,11 @@ def main(quick: bool = False) -> list[dict]:
     t_ours, t_given, t_floor = [], [], []
     hit = tot = good = claimed = 0
     for (syn, img), usable in zip(scenes, masks, strict=True):
-        t, det = _best(lambda img=img, usable=usable: detect_spots(img, mask=usable), repeat)
+        t, det = timed(lambda img=img, usable=usable: detect_spots(img, mask=usable), repeat)
         t_ours.append(t)
-        t, _ = _best(lambda img=img, usable=usable: detect_spots(img, mask=usable, spot_sigma=sigma), repeat)
+        t, _ = timed(lambda img=img, usable=usable: detect_spots(img, mask=usable, spot_sigma=sigma), repeat)
         t_given.append(t)
-        t, _ = _best(lambda img=img: ndi.gaussian_filter(img.data, sigma), repeat)
+        t, _ = timed(lambda img=img: ndi.gaussian_filter(img.data, sigma), repeat)
         t_floor.append(t)
         h, n, g, c = _recall_precision(syn, det.spots.positions, det.spots.snr >= 5, radius)
         hit, tot, good, claimed = hit + h, tot + n, good + g, claimed + c
@@ -122,7 +113,7 @@ def main(quick: bool = False) -> list[dict]:
     def run_blob(thr):
         times, hits_, tot_, good_, claimed_ = [], 0, 0, 0, 0
         for (syn, img), usable in zip(scenes, masks, strict=True):
-            t, blobs = _best(lambda img=img, usable=usable: _blob_log(img.data, usable, sigma, thr), 1)
+            t, blobs = timed(lambda img=img, usable=usable: _blob_log(img.data, usable, sigma, thr), 1)
             times.append(t)
             pos = blobs[:, [1, 0]] if len(blobs) else np.zeros((0, 2))
             iy = np.clip(np.rint(pos[:, 1]).astype(int), 0, size - 1)

@@ -18,9 +18,9 @@ Run ``python scripts/bench_kinematic.py [--quick]``; ``main(quick)`` returns the
 from __future__ import annotations
 
 import argparse
-import time
 
 import numpy as np
+from benchtools import best_of_interleaved
 
 from surfgeo.diffraction.kinematic import kinematic_intensities, kinematic_iv, scattering_geometry
 
@@ -72,17 +72,6 @@ def rotated(pos: np.ndarray, op: np.ndarray) -> np.ndarray:
     out = pos.copy()
     out[:, :2] = pos[:, :2] @ op.T
     return out
-
-
-def best_of_interleaved(fns, repeat: int) -> list[float]:
-    """Best wall time of each function, runs interleaved so that load changes hit all alike."""
-    times = [[] for _ in fns]
-    for _ in range(repeat):
-        for fn, t in zip(fns, times, strict=True):
-            t0 = time.perf_counter()
-            fn()
-            t.append(time.perf_counter() - t0)
-    return [min(t) for t in times]
 
 
 def bench_domains(quick: bool) -> dict:

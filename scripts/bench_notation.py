@@ -21,21 +21,12 @@ from __future__ import annotations
 import itertools
 import math
 import sys
-import time
 from pathlib import Path
 
 import numpy as np
+from benchtools import best_time
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-
-
-def _best(fn, repeat: int) -> float:
-    best = float("inf")
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def _float_domains(A: np.ndarray, ops, M: np.ndarray) -> int:
@@ -107,8 +98,8 @@ def main(quick: bool = False) -> list[dict]:
         return sum(_float_domains(A, ops, H.astype(float)) for H in hnfs)
 
     assert ours_domains() == float_domains()
-    t_ours = _best(ours_domains, repeat)
-    t_base = _best(float_domains, repeat)
+    t_ours = best_time(ours_domains, repeat)
+    t_base = best_time(float_domains, repeat)
     rows.append({
         "benchmark": f"all {n_items} superlattices up to area {max_area} (hex) with domains",
         "measured": f"{t_ours * 1e3:.0f} ms total, {t_ours / n_items * 1e6:.0f} us/item",
@@ -122,8 +113,8 @@ def main(quick: bool = False) -> list[dict]:
     K = np.array(list(itertools.product(rng, repeat=4)), dtype=float).reshape(-1, 2, 2)
     detK = np.rint(np.linalg.det(K)).astype(int)
     sample = hnfs if quick else hnfs[:: max(1, len(hnfs) // 400)]
-    t_wood = _best(lambda: [matrix_to_wood(lattice, H) for H in hnfs], 1 if not quick else repeat)
-    t_brute = _best(lambda: [_brute_wood(A, H.astype(float), K, detK) for H in sample], repeat)
+    t_wood = best_time(lambda: [matrix_to_wood(lattice, H) for H in hnfs], 1 if not quick else repeat)
+    t_brute = best_time(lambda: [_brute_wood(A, H.astype(float), K, detK) for H in sample], repeat)
     per_ours = t_wood / n_items
     per_brute = t_brute / len(sample)
     n_ours = sum(len(matrix_to_wood(lattice, H)) for H in sample)
@@ -152,8 +143,8 @@ def main(quick: bool = False) -> list[dict]:
             B, _ = _basis(A, float(w.p), float(w.q), math.radians(w.angle), w.centred)
             B @ Ainv
 
-    t_w2m = _best(ours_w2m, repeat)
-    t_flt = _best(float_only, repeat)
+    t_w2m = best_time(ours_w2m, repeat)
+    t_flt = best_time(float_only, repeat)
     n_rotated = sum(f.rotated for f in forms)
     rows.append({
         "benchmark": f"Wood text -> exact matrix with snapping ({len(texts)} forms, {n_rotated} rotated)",
@@ -170,8 +161,8 @@ def main(quick: bool = False) -> list[dict]:
     def plain():
         return sum(len(hermite_normal_forms(n)) for n in areas)
 
-    t_dist = _best(distinct, repeat)
-    t_plain = _best(plain, repeat)
+    t_dist = best_time(distinct, repeat)
+    t_plain = best_time(plain, repeat)
     rows.append({
         "benchmark": f"superlattices up to area {max_area} modulo 6mm ({distinct()} orbits)",
         "measured": f"{t_dist * 1e3:.1f} ms",

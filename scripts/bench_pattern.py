@@ -24,10 +24,10 @@ Run ``python scripts/bench_pattern.py [--quick]``; ``main(quick)`` returns the r
 from __future__ import annotations
 
 import argparse
-import time
 
 import numpy as np
 from ase import Atoms
+from benchtools import best_of_interleaved
 
 from surfgeo.diffraction.kinematic import scattering_geometry
 from surfgeo.diffraction.pattern import slab_pattern
@@ -62,17 +62,6 @@ def synthetic_slab(n_cell: int, layers: int, random_state: int = 1) -> Atoms:
         "provenance": ["synthetic benchmark slab"],
     }
     return atoms
-
-
-def best_of_interleaved(fns, repeat: int) -> list[float]:
-    """Best wall time of each function, runs interleaved so that load changes hit all alike."""
-    times = [[] for _ in fns]
-    for _ in range(repeat):
-        for fn, t in zip(fns, times, strict=True):
-            t0 = time.perf_counter()
-            fn()
-            t.append(time.perf_counter() - t0)
-    return [min(t) for t in times]
 
 
 def _rotated_positions(atoms, pattern, domain_index=0):

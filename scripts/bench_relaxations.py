@@ -20,20 +20,11 @@ from __future__ import annotations
 
 import sys
 import tempfile
-import time
 import warnings
 from pathlib import Path
 
 import numpy as np
-
-
-def _best(fn, repeat: int) -> float:
-    best = float("inf")
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
+from benchtools import best_time
 
 
 def _case(tmp: Path, size: tuple[int, int, int], amplitude: float, noise: float, tag: str):
@@ -104,8 +95,8 @@ def main(quick: bool = False) -> list[dict]:
                 rel = read_structure(rel_path)
                 result["report"] = analyse_relaxation(ref, rel, max_displacement=4.0)
 
-            t_ase = _best(ase_read, repeat)
-            t_ours = _best(ours, repeat)
+            t_ase = best_time(ase_read, repeat)
+            t_ours = best_time(ours, repeat)
             if amplitude:
                 # beyond half the neighbour distance the optimal matching need not be the applied
                 # displacement field, so report its mean squared displacement against the applied one

@@ -20,18 +20,7 @@ Timings are the median of several repetitions after one warm-up call (both sides
 
 from __future__ import annotations
 
-import statistics
-import time
-
-
-def _median_time(fn, repeat: int) -> float:
-    fn()
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
+from benchtools import median_time
 
 
 def main(quick: bool = False) -> list[dict]:
@@ -54,9 +43,9 @@ def main(quick: bool = False) -> list[dict]:
 
     sites = find_sites(big)
     nsites = sum(c.multiplicity for c in sites)
-    t_sites = _median_time(lambda: find_sites(big), repeat)
+    t_sites = median_time(lambda: find_sites(big), repeat)
     cutoff = 1.25 * sites.nn_distance
-    t_nl = _median_time(lambda: neighbor_list("ij", big, cutoff), repeat)
+    t_nl = median_time(lambda: neighbor_list("ij", big, cutoff), repeat)
     rows.append({
         "benchmark": f"find_sites Pt(533) {n}x{n} ({len(big)} atoms, {nsites} sites) vs ASE neighbor_list",
         "measured": f"{t_sites * 1e3:.1f} ms ({t_sites / nsites * 1e6:.1f} us/site, "
@@ -65,7 +54,7 @@ def main(quick: bool = False) -> list[dict]:
         "ratio": t_sites / t_nl,
         "goal": "< 1 s absolute",
     })
-    t_small = _median_time(lambda: find_sites(small), repeat)
+    t_small = median_time(lambda: find_sites(small), repeat)
     per_big, per_small = t_sites / len(big), t_small / len(small)
     rows.append({
         "benchmark": f"find_sites time per atom, {n}x{n} vs 5x5 supercell of Pt(533)",
@@ -80,7 +69,7 @@ def main(quick: bool = False) -> list[dict]:
     film = Film([A[0], A[1] / 3], (("O", 0.0, 0.0, 0.0),), "test film")
     layer, report = add_overlayer(big, film, height=2.5)
     assert report.outcome == "commensurate"
-    t_film = _median_time(lambda: add_overlayer(big, film, height=2.5), repeat)
+    t_film = median_time(lambda: add_overlayer(big, film, height=2.5), repeat)
     film_pos = layer.positions[len(big):]
 
     def ase_one_by_one():
@@ -90,7 +79,7 @@ def main(quick: bool = False) -> list[dict]:
             ase_add_adsorbate(s, "O", p[2] - z0, position=(p[0], p[1]))
         return s
 
-    t_ase_film = _median_time(ase_one_by_one, 1 if quick else 2)
+    t_ase_film = median_time(ase_one_by_one, 1 if quick else 2)
     rows.append({
         "benchmark": f"add_overlayer {report.atoms_added} film atoms on Pt(533) {n}x{n} "
                      "vs ASE add_adsorbate loop",
@@ -105,7 +94,7 @@ def main(quick: bool = False) -> list[dict]:
     def ours_co():
         return add_adsorbate(big, "CO", "step-edge-top", which="all", height=1.85)  # finds the sites too
 
-    t_co = _median_time(ours_co, repeat)
+    t_co = median_time(ours_co, repeat)
 
     def ase_co():
         s = big.copy()
@@ -116,7 +105,7 @@ def main(quick: bool = False) -> list[dict]:
             ase_add_adsorbate(s, co, p[2] + 1.85 - z0, position=(p[0], p[1]), mol_index=1)
         return s
 
-    t_ase_co = _median_time(ase_co, 1 if quick else 2)
+    t_ase_co = median_time(ase_co, 1 if quick else 2)
     rows.append({
         "benchmark": f"add_adsorbate CO on all {edge.multiplicity} step-edge tops of Pt(533) {n}x{n} "
                      "vs ASE add_adsorbate loop",

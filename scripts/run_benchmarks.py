@@ -23,6 +23,8 @@ import traceback
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
+if str(HERE) not in sys.path:  # the benchmarks import their shared helpers from benchtools.py
+    sys.path.insert(0, str(HERE))
 
 
 def load(path: Path):

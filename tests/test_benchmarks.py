@@ -4,6 +4,7 @@ it relies on, and one quick benchmark runs through it into the table. No timing 
 import importlib.util
 import inspect
 import math
+import sys
 from pathlib import Path
 
 SCRIPTS = Path(__file__).resolve().parent.parent / "scripts"
@@ -11,6 +12,8 @@ KEYS = {"benchmark", "measured", "baseline", "ratio", "goal"}
 
 
 def load(path: Path):
+    if str(SCRIPTS) not in sys.path:  # the benchmarks import their helpers from scripts/benchtools.py
+        sys.path.insert(0, str(SCRIPTS))
     spec = importlib.util.spec_from_file_location(path.stem, path)
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)
