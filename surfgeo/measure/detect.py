@@ -57,6 +57,22 @@ Method
 6. **Spot width.** ``sigma`` is the width from the weighted second moment, corrected for the
    Gaussian weight and the pixel size; the width used for filtering is the median of these
    over the brightest spots when not given (:func:`estimate_spot_sigma`).
+7. **Residual search for spots beside brighter ones** (iterative subtraction of fitted
+   spots: P. B. Stetson, Publ. Astron. Soc. Pac. 99, 191 (1987)). A faint spot 3-5 widths
+   from a brighter one is, after the matched filter, often only a shoulder of it and no
+   local maximum. Each accepted spot is modelled as a Gaussian (the filter width with the
+   pixel's 1/12, or its own measured width when snr > 20) whose peak is fitted by least
+   squares to its unsaturated pixels; the model, filtered analytically (widths add in
+   quadrature), is subtracted from the band-passed image, and the residual near the spots
+   is searched for maxima at the same threshold in noise units of step 3, with 3 % of the
+   subtracted model added to the noise in quadrature for the mismatch between model and
+   spot. When the pattern is crowded (band-passed noise, median over the meshes, more than
+   1.1 x what the pixel-to-pixel differences predict for white noise) the noise is first
+   measured again on the residual. Maxima closer than 2 widths to a fitted spot are left
+   out. New candidates are refined and measured with the fitted spots subtracted and kept
+   when they pass the tests of step 4, their aperture lies on usable pixels and their own
+   snr reaches the threshold; then the new spots and their neighbours are measured again
+   with all other spots subtracted. Up to three rounds, while new spots are found.
 
 Coordinates: x right, y down, the centre of the top-left pixel at (0, 0).
 """
@@ -65,7 +81,7 @@ from __future__ import annotations
 
 import functools
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -90,6 +106,17 @@ _TRUNCATE = 4.0
 #: Width (in meshes) of the Gaussian weight of the local quadratic smoothing of mesh grids.
 LOESS_WIDTH = 1.0
 _MAD = 1.4826
+#: Residual search: new maxima closer than this (spot widths) to a fitted spot are left out.
+RESIDUAL_SEPARATION = 2.0
+#: Residual search: fraction of the subtracted (filtered) model added to the noise in
+#: quadrature, for the mismatch between the Gaussian model and real spots.
+RESIDUAL_MODEL_ERROR = 0.03
+#: Residual search: at most this many rounds (each with the spots found so far subtracted).
+RESIDUAL_ROUNDS = 3
+#: Band-passed noise above this multiple (median over the meshes) of the white-noise
+#: prediction from pixel differences marks a crowded pattern, whose noise is then measured
+#: again on the residual.
+CROWDED_NOISE = 1.1
 
 
 @dataclass(frozen=True, eq=False)
@@ -526,6 +553,7 @@ class _Front:
     peak: np.ndarray  # sub-pixel peak from a parabola through the 3 x 3 neighbourhood [x, y]
     b: int
     filtered: np.ndarray | None = None  # the band-passed image (padded)
+    up: Any = None  # the _Upsampler from meshes to pixels
 
 
 def _front(
@@ -640,6 +668,25 @@ def _front(
             spread = _pooled_noise(diff, both, np.where(np.isfinite(spread), spread, np.inf), m, pool=False)
         pixel_var = spread**2 / 2
 
+    rows, cols, stat, peak = _maxima(smooth, s_med, s_noise, valid, all_valid, threshold, b, (h, w))
+    return _Front(filled=filled, background=background, valid=valid, saturated=sat, bg_mesh=bg,
+                  s_med=s_med, s_noise=s_noise, raw_noise=raw_noise, pixel_var=pixel_var, mesh_fraction=w0,
+                  usable_mesh=usable_mesh,
+                  rows=rows, cols=cols, stat=stat, peak=peak, b=b, filtered=smooth, up=up)
+
+
+def _maxima(smooth: np.ndarray, s_med: np.ndarray, s_noise: np.ndarray, valid: np.ndarray, all_valid: bool,
+            threshold: float, b: int, shape: tuple[int, int], region: np.ndarray | None = None,
+            extra_noise: np.ndarray | None = None):
+    """Local maxima of the band-passed (padded) image ``threshold`` noise units above zero (step 3).
+
+    Only pixels in ``region`` (if given) are searched; ``extra_noise`` (a padded image, if
+    given) is added in quadrature to the noise. Returns rows, cols, significance and the
+    parabolic sub-pixel peak [x, y].
+    """
+    h, w = shape
+    hp, wp = smooth.shape
+    hb, wb = s_med.shape
     # candidates: above a conservative piecewise-constant threshold, then exact test
     thr = ndi.minimum_filter(s_med + 0.9 * threshold * s_noise, size=3, mode="nearest").astype(np.float32)
     cand = (smooth.reshape(hb, b, wb, b) > thr[:, None, :, None]).reshape(hp, wp)
@@ -650,6 +697,8 @@ def _front(
     cand[:, 0] = False
     cand[h - 1:, :] = False
     cand[:, w - 1:] = False
+    if region is not None:
+        cand &= region
     idx = np.flatnonzero(cand)
     flat = smooth.ravel()
     v = flat[idx]
@@ -680,14 +729,13 @@ def _front(
     top = c - 0.5 * (cx * dx**2 + cy * dy**2)  # c + the parabolas' rise to their vertices
     med = _interp_points(s_med, rows, cols, b)
     noise = _interp_points(s_noise, rows, cols, b)
+    if extra_noise is not None:
+        noise = np.hypot(noise, extra_noise[rows, cols])
     stat = (top - med) / noise
     keep = stat > threshold
     rows, cols, stat = rows[keep], cols[keep], stat[keep]
     peak = np.column_stack([cols + dx[keep], rows + dy[keep]])
-    return _Front(filled=filled, background=background, valid=valid, saturated=sat, bg_mesh=bg,
-                  s_med=s_med, s_noise=s_noise, raw_noise=raw_noise, pixel_var=pixel_var, mesh_fraction=w0,
-                  usable_mesh=usable_mesh,
-                  rows=rows, cols=cols, stat=stat, peak=peak, b=b, filtered=smooth)
+    return rows, cols, stat, peak
 
 
 # ---------------------------------------------------------------------------------------
@@ -823,12 +871,25 @@ def _gaussian_fit(p: _Patches, d: np.ndarray, x: np.ndarray, y: np.ndarray, sigm
     return cx, cy
 
 
-def _refine(front: _Front, shape, sigma: float, gain: float | None, aperture: float):
-    """Refined positions and photometry of the candidates of ``front``."""
+def _refine(front: _Front, shape, sigma: float, gain: float | None, aperture: float,
+            model: np.ndarray | None = None, own: tuple | None = None):
+    """Refined positions and photometry of the candidates of ``front``.
+
+    With ``model`` (a padded image of fitted spots, see :func:`_spot_model`) the neighbours
+    are subtracted first; ``own`` = (x, y, amplitude) of each candidate's own term in
+    ``model`` (added back), or None when the candidates are not in it.
+    """
     r_in, r_out = ANNULUS[0] * sigma, ANNULUS[1] * sigma
     half = int(math.ceil(r_out)) + 1
     p = _patches(front.filled, front.valid, front.saturated, front.background, front.rows, front.cols,
                  half, shape)
+    if model is not None:
+        pm = _patches(model, front.valid, front.saturated, None, front.rows, front.cols, half, shape)
+        p.values -= pm.values
+        if own is not None:
+            ox, oy, oa, ow2 = own
+            r2own = (p.X - ox[:, None, None]) ** 2 + (p.Y - oy[:, None, None]) ** 2
+            p.values += oa[:, None, None] * np.exp(-0.5 * r2own / ow2[:, None, None])
     x0, y0 = front.peak[:, 0].copy(), front.peak[:, 1].copy()
     # local background offset and pixel noise from the annulus around the start (the
     # refinement moves a spot by a fraction of a pixel; the annulus is 2 widths wide)
@@ -891,7 +952,17 @@ def _refine(front: _Front, shape, sigma: float, gain: float | None, aperture: fl
     core_usable = (core & p.valid).sum(axis=(1, 2)) / np.maximum(core.sum(axis=(1, 2)), 1)
     sat = (ap_all & p.saturated).any(axis=(1, 2))
     moved = np.hypot(x - x0, y - y0)
+    # peak value of the least-squares Gaussian (width sigma with the pixel) at (x, y), fitted to
+    # the unsaturated pixels within 4 widths: the spot's term of the model image
+    # bright spots with their own measured width (widths can differ from spot to spot)
+    mw2 = np.where((snr > 20) & np.isfinite(s_pix2), s_pix2, sigma**2 + 1.0 / 12.0)
+    mw2 = np.clip(mw2, 0.25 * sigma**2 + 1.0 / 12.0, 4 * sigma**2 + 1.0 / 12.0)
+    gm = np.exp(-0.5 * r2 / mw2[:, None, None]) * (p.valid & ~p.saturated & (r2 <= (4 * sigma) ** 2))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        amp = (gm * d).sum(axis=(1, 2)) / (gm * gm).sum(axis=(1, 2))
+    amp = np.where(np.isfinite(amp) & (amp > 0), amp, 0.0)
     return {
+        "amplitude": amp, "model_width2": mw2,
         "x": x, "y": y, "intensity": flux_ap, "intensity_error": np.sqrt(var_ap), "sigma": width,
         "snr": snr, "uncertainty": unc, "saturated": sat, "edge": edge, "converged": conv,
         "moved": moved, "core_usable": core_usable, "second_moment": np.where(sw > 0, m2, np.nan),
@@ -927,6 +998,125 @@ def _merge(x: np.ndarray, y: np.ndarray, score: np.ndarray, radius: float) -> np
 
 # ---------------------------------------------------------------------------------------
 # public functions
+
+
+def _accepted(res: dict, shape, sigma: float) -> tuple[np.ndarray, np.ndarray]:
+    """Refined candidates that are spots (on the image, centre usable, not run away), and hot pixels."""
+    h, w = shape
+    x, y = res["x"], res["y"]
+    ok = (res["moved"] <= 1.5 * sigma + 1) & (x > -0.5) & (x < w - 0.5) & (y > -0.5) & (y < h - 0.5)
+    ok &= np.isfinite(x) & np.isfinite(y)
+    ok &= res["core_usable"] >= 0.5  # the spot's centre lies on usable pixels
+    # single hot pixels (or cosmic-ray hits): bright, and far narrower than the spots
+    narrow2 = (HOT_PIXEL_WIDTH * sigma) ** 2 + 1.0 / 12.0  # incl. the pixel's 1/12
+    m2_narrow = narrow2 * sigma**2 / (narrow2 + sigma**2)  # its weighted moment
+    hot = ok & (sigma >= 1.0) & (res["snr"] > 10) & (res["second_moment"] < m2_narrow)
+    return ok, hot
+
+
+def _spot_model(shape: tuple[int, int], x: np.ndarray, y: np.ndarray, amp: np.ndarray,
+                width2: np.ndarray) -> np.ndarray:
+    """Image of Gaussian spots ``amp exp(-r^2 / (2 width2))`` at (x, y), each drawn to 4 widths."""
+    hp, wp = shape
+    width = np.sqrt(width2)[:, None]
+    half = int(math.ceil(4 * float(np.max(width))))
+    off = np.arange(-half, half + 1)
+    rr = np.rint(y).astype(int)[:, None] + off
+    cc = np.rint(x).astype(int)[:, None] + off
+    gy = np.exp(-0.5 * (rr - y[:, None]) ** 2 / width**2) * ((rr >= 0) & (rr < hp))
+    gx = np.exp(-0.5 * (cc - x[:, None]) ** 2 / width**2) * ((cc >= 0) & (cc < wp))
+    vals = amp[:, None, None] * gy[:, :, None] * gx[:, None, :]
+    idx = np.clip(rr, 0, hp - 1)[:, :, None] * wp + np.clip(cc, 0, wp - 1)[:, None, :]
+    return np.bincount(idx.ravel(), weights=vals.ravel(), minlength=hp * wp).reshape(hp, wp)
+
+
+def _residual_noise(front: _Front, resid: np.ndarray, fm: np.ndarray, threshold: float,
+                    sigma: float) -> np.ndarray:
+    """Noise per mesh of the band-passed residual (as in step 3, the fitted spots subtracted).
+
+    In a crowded pattern the wings of the spots inflate the noise of step 3; measured on the
+    residual they do not. Pixels of clear sources in the residual and of the cores of the
+    fitted spots are left out.
+    """
+    m = front.b // 2
+    up = front.up
+    r_sub = np.ascontiguousarray(resid[::2, ::2])
+    ok = front.valid[::2, ::2] & ~front.saturated[::2, ::2]
+    ok &= ~_sources(r_sub, front.s_med, front.s_noise, max(threshold, 4.0), 2 * sigma, m)
+    ok &= ~(fm[::2, ::2] > 3.0 * up.sub(front.s_noise))
+    dev = r_sub - up.sub(front.s_med)
+    floor = 1e-6 * max(1.0, float(np.max(np.abs(front.bg_mesh))))
+    noise = front.raw_noise
+    for _ in range(2):
+        noise = _pooled_noise(dev, ok, noise, m)
+        known = np.isfinite(noise) & front.usable_mesh
+        if not known.any():
+            return front.s_noise
+        noise = np.maximum(_fill_meshes(noise, known), floor)
+    return _smooth_meshes(noise, front.usable_mesh.astype(float))
+
+
+def _residual_pass(front: _Front, res: dict, shape, sigma: float, threshold: float, gain, aperture: float):
+    """Search the residual of the fitted spots for spots hidden beside brighter ones (step 7).
+
+    ``res`` holds the accepted spots of the first pass (with ``amplitude`` and ``stat``).
+    Returns the spots with the new ones appended (neighbours of new spots re-measured with
+    them subtracted) and the number of new candidates.
+    """
+    from scipy.spatial import cKDTree
+
+    x, y, a, s2 = res["x"], res["y"], res["amplitude"], res["model_width2"]
+    f2 = s2 + sigma**2  # a Gaussian spot of width^2 s2 after the filter of width sigma
+    fm = _spot_model(front.filtered.shape, x, y, a * s2 / f2, f2)
+    resid = front.filtered - fm
+    # crowding: where the band-passed noise exceeds what the pixel-to-pixel noise predicts
+    # for white noise, the wings of the spots inflate it; measure it again on the residual
+    expected = np.sqrt(front.pixel_var * gaussian_kernel_norm2(sigma))
+    ratio = front.s_noise / expected
+    ratio = ratio[front.usable_mesh & np.isfinite(ratio)]
+    crowded = ratio.size > 0 and float(np.median(ratio)) > CROWDED_NOISE
+    s_noise = _residual_noise(front, resid, fm, threshold, sigma) if crowded else front.s_noise
+    all_valid = bool(front.valid.all())
+    rows, cols, stat, peak = _maxima(resid, front.s_med, s_noise, front.valid, all_valid,
+                                     threshold,
+                                     front.b, shape, region=fm > 0, extra_noise=RESIDUAL_MODEL_ERROR * fm)
+    if rows.size:
+        far = cKDTree(np.column_stack([x, y])).query(peak)[0] >= RESIDUAL_SEPARATION * sigma
+        rows, cols, stat, peak = rows[far], cols[far], stat[far], peak[far]
+    n_new = int(rows.size)
+    if n_new == 0:
+        return res, 0
+    model = _spot_model(front.filled.shape, x, y, a, s2)
+    new = _refine(replace(front, rows=rows, cols=cols, stat=stat, peak=peak), shape, sigma, gain,
+                  aperture, model=model)
+    ok, hot = _accepted(new, shape, sigma)
+    # a new spot must stand on its own after the subtraction: significant in its own
+    # photometry and with its aperture on usable pixels (beside a mask edge or the image
+    # border the band-passed background is least certain)
+    ok &= ~hot & ~new["edge"] & (new["snr"] >= threshold)
+    if not ok.any():
+        return res, n_new
+    new = {k: v[ok] for k, v in new.items()}
+    new["stat"] = stat[ok]
+    both = {k: np.concatenate([res[k], new[k]]) for k in res}
+    # measure again, with all other spots subtracted: the new spots and their old neighbours
+    n_old = x.size
+    reach = (ANNULUS[1] + 4) * sigma
+    near = np.zeros(both["x"].size, dtype=bool)
+    near[n_old:] = True
+    hits = cKDTree(np.column_stack([new["x"], new["y"]])).query_ball_point(np.column_stack([x, y]), reach)
+    near[:n_old] = np.array([len(h) > 0 for h in hits])
+    bx, by, ba, bw2 = both["x"], both["y"], both["amplitude"], both["model_width2"]
+    model = _spot_model(front.filled.shape, bx, by, ba, bw2)
+    i = np.nonzero(near)[0]
+    sub = replace(front, rows=np.rint(by[i]).astype(int), cols=np.rint(bx[i]).astype(int),
+                  stat=both["stat"][i], peak=np.column_stack([bx[i], by[i]]))
+    again = _refine(sub, shape, sigma, gain, aperture, model=model, own=(bx[i], by[i], ba[i], bw2[i]))
+    fine = np.isfinite(again["x"]) & np.isfinite(again["y"]) & (again["moved"] <= sigma)
+    for k in both:
+        if k in again:
+            both[k][i[fine]] = again[k][fine]
+    return both, n_new
 
 
 def _prepare(image, mask, saturation):
@@ -1182,21 +1372,26 @@ def detect_spots(
         spots = SpotList.empty()
     else:
         res = _refine(front, data.shape, spot_sigma, gain, aperture)
-        h, w = data.shape
         x, y = res["x"], res["y"]
-        ok = (res["moved"] <= 1.5 * spot_sigma + 1) & (x > -0.5) & (x < w - 0.5) & (y > -0.5) & (y < h - 0.5)
-        ok &= np.isfinite(x) & np.isfinite(y)
-        ok &= res["core_usable"] >= 0.5  # the spot's centre lies on usable pixels
-        # single hot pixels (or cosmic-ray hits): bright, and far narrower than the spots
-        narrow2 = (HOT_PIXEL_WIDTH * spot_sigma) ** 2 + 1.0 / 12.0  # incl. the pixel's 1/12
-        m2_narrow = narrow2 * spot_sigma**2 / (narrow2 + spot_sigma**2)  # its weighted moment
-        hot = ok & (spot_sigma >= 1.0) & (res["snr"] > 10) & (res["second_moment"] < m2_narrow)
+        ok, hot = _accepted(res, data.shape, spot_sigma)
         if hot.any():
             notes.append(f"{int(hot.sum())} maxima much narrower than the spots (hot pixels) were left out.")
         ok &= ~hot
         sel = np.nonzero(ok)[0]
         keep = sel[_merge(x[sel], y[sel], front.stat[sel], max(1.0, spot_sigma))]
-        spots = SpotList.from_columns(**{k: res[k][keep] for k in (
+        res = {k: v[keep] for k, v in res.items()}
+        res["stat"] = front.stat[keep]
+        for _ in range(RESIDUAL_ROUNDS):
+            if not keep.size:
+                break
+            n_before = keep.size
+            res, n_new = _residual_pass(front, res, data.shape, spot_sigma, threshold, gain, aperture)
+            candidates += n_new
+            keep = _merge(res["x"], res["y"], res["stat"], max(1.0, spot_sigma))
+            res = {k: v[keep] for k, v in res.items()}
+            if keep.size == n_before:
+                break
+        spots = SpotList.from_columns(**{k: res[k] for k in (
             "x", "y", "intensity", "intensity_error", "sigma", "snr", "uncertainty", "saturated", "edge")})
         spots = spots.sorted_by("snr")
     bg_level = float(np.median(front.bg_mesh[front.usable_mesh]))
