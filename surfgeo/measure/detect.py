@@ -677,30 +677,35 @@ def _front(
 
 def _maxima(smooth: np.ndarray, s_med: np.ndarray, s_noise: np.ndarray, valid: np.ndarray, all_valid: bool,
             threshold: float, b: int, shape: tuple[int, int], region: np.ndarray | None = None,
-            extra_noise: np.ndarray | None = None):
+            extra_noise: np.ndarray | None = None, extra_scale: float = 1.0):
     """Local maxima of the band-passed (padded) image ``threshold`` noise units above zero (step 3).
 
     Only pixels in ``region`` (if given) are searched; ``extra_noise`` (a padded image, if
-    given) is added in quadrature to the noise. Returns rows, cols, significance and the
-    parabolic sub-pixel peak [x, y].
+    given, times ``extra_scale``) is added in quadrature to the noise. Returns rows, cols,
+    significance and the parabolic sub-pixel peak [x, y].
     """
     h, w = shape
     hp, wp = smooth.shape
     hb, wb = s_med.shape
     # candidates: above a conservative piecewise-constant threshold, then exact test
     thr = ndi.minimum_filter(s_med + 0.9 * threshold * s_noise, size=3, mode="nearest").astype(np.float32)
-    cand = (smooth.reshape(hb, b, wb, b) > thr[:, None, :, None]).reshape(hp, wp)
+    flat = smooth.ravel()
     # maxima on masked pixels next to usable ones are kept for now: a spot with a few dead
     # pixels may peak on one; after refinement only spots whose centre lies mostly on
     # usable pixels remain
-    cand[0, :] = False
-    cand[:, 0] = False
-    cand[h - 1:, :] = False
-    cand[:, w - 1:] = False
-    if region is not None:
-        cand &= region
-    idx = np.flatnonzero(cand)
-    flat = smooth.ravel()
+    if region is None:
+        cand = (smooth.reshape(hb, b, wb, b) > thr[:, None, :, None]).reshape(hp, wp)
+        cand[0, :] = False
+        cand[:, 0] = False
+        cand[h - 1:, :] = False
+        cand[:, w - 1:] = False
+        idx = np.flatnonzero(cand)
+    else:  # only the pixels of the region (few)
+        idx = np.flatnonzero(region)
+        r_, c_ = np.divmod(idx, wp)
+        inner = (r_ > 0) & (c_ > 0) & (r_ < h - 1) & (c_ < w - 1)
+        idx, r_, c_ = idx[inner], r_[inner], c_[inner]
+        idx = idx[flat[idx] > thr[r_ // b, c_ // b]]
     v = flat[idx]
     is_max = np.ones(idx.shape, dtype=bool)
     for off in (-wp - 1, -wp, -wp + 1, -1):
@@ -730,7 +735,7 @@ def _maxima(smooth: np.ndarray, s_med: np.ndarray, s_noise: np.ndarray, valid: n
     med = _interp_points(s_med, rows, cols, b)
     noise = _interp_points(s_noise, rows, cols, b)
     if extra_noise is not None:
-        noise = np.hypot(noise, extra_noise[rows, cols])
+        noise = np.hypot(noise, extra_scale * extra_noise[rows, cols])
     stat = (top - med) / noise
     keep = stat > threshold
     rows, cols, stat = rows[keep], cols[keep], stat[keep]
@@ -1067,7 +1072,7 @@ def _residual_pass(front: _Front, res: dict, shape, sigma: float, threshold: flo
 
     x, y, a, s2 = res["x"], res["y"], res["amplitude"], res["model_width2"]
     f2 = s2 + sigma**2  # a Gaussian spot of width^2 s2 after the filter of width sigma
-    fm = _spot_model(front.filtered.shape, x, y, a * s2 / f2, f2)
+    fm = _spot_model(front.filtered.shape, x, y, a * s2 / f2, f2).astype(np.float32)
     resid = front.filtered - fm
     # crowding: where the band-passed noise exceeds what the pixel-to-pixel noise predicts
     # for white noise, the wings of the spots inflate it; measure it again on the residual
@@ -1079,7 +1084,8 @@ def _residual_pass(front: _Front, res: dict, shape, sigma: float, threshold: flo
     all_valid = bool(front.valid.all())
     rows, cols, stat, peak = _maxima(resid, front.s_med, s_noise, front.valid, all_valid,
                                      threshold,
-                                     front.b, shape, region=fm > 0, extra_noise=RESIDUAL_MODEL_ERROR * fm)
+                                     front.b, shape, region=fm > 0, extra_noise=fm,
+                                     extra_scale=RESIDUAL_MODEL_ERROR)
     if rows.size:
         far = cKDTree(np.column_stack([x, y])).query(peak)[0] >= RESIDUAL_SEPARATION * sigma
         rows, cols, stat, peak = rows[far], cols[far], stat[far], peak[far]
