@@ -32,7 +32,11 @@ def command_modules() -> list:
     return sorted(mods, key=lambda m: (getattr(m, "ORDER", 100), m.__name__))
 
 EPILOG = """\
-example:
+examples:
+  surfgeo demo
+      the whole job on built-in synthetic data: spots, calibration, indexing, model ranking,
+      DFT input and an expected-spot map, with an HTML report in ./surfgeo-demo
+
   surfgeo notation --lattice hex:2.77 "(sqrt3 x sqrt3)R30"
       matrix, Wood forms and domain count of a (\u221a3\u00d7\u221a3)R30\u00b0 superstructure on a
       hexagonal substrate with a = 2.77 \u00c5
