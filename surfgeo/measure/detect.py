@@ -26,7 +26,14 @@ Method
    absolute deviation (MAD) per mesh, then -- with clear spots left out -- the standard
    deviation about the zero level pooled over 3 x 3 meshes and clipped at 3 sigma (pooling
    matters for wide spots, whose correlated noise leaves few independent samples in one
-   mesh). A pixel is a candidate when it is a local maximum of its 3 x 3 neighbourhood
+   mesh). In a crowded pattern the wings of the spots inflate this spread (1.3-1.6 x the
+   true noise with spots 4-5 widths apart over the whole screen), while the differences
+   of pixels two apart still follow the white noise: var = 2 var(pixel), and through the
+   filter's noise gain (sum of its squared weights) they predict the band-passed noise.
+   When the band-passed noise, median over the meshes at least two meshes inside the
+   image, exceeds 1.1 x this prediction, the noise of those meshes is capped at 1.1 x
+   the prediction.
+   A pixel is a candidate when it is a local maximum of its 3 x 3 neighbourhood
    and lies ``threshold`` noise units above the zero level.
 4. **Sub-pixel refinement: iterated Gaussian-weighted centroid.** Each spot's position is
    the fixed point of ``x = sum(w d x) / sum(w d)``, with d the pixels minus the
@@ -68,11 +75,12 @@ Method
    subtracted model added to the noise in quadrature for the mismatch between model and
    spot. When the pattern is crowded (band-passed noise, median over the meshes, more than
    1.1 x what the pixel-to-pixel differences predict for white noise) the noise is first
-   measured again on the residual. Maxima closer than 2 widths to a fitted spot are left
-   out. New candidates are refined and measured with the fitted spots subtracted and kept
-   when they pass the tests of step 4, their aperture lies on usable pixels and their own
-   snr reaches the threshold; then the new spots and their neighbours are measured again
-   with all other spots subtracted. Up to three rounds, while new spots are found.
+   measured again on the residual (not above the cap of step 3). Maxima closer than 2
+   widths to a fitted spot are left out. New candidates are refined and measured with the
+   fitted spots subtracted and kept when they pass the tests of step 4, their aperture
+   lies on usable pixels and their own snr reaches the threshold; then the new spots and
+   their neighbours are measured again with all other spots subtracted. Up to three
+   rounds, while new spots are found.
 
 Coordinates: x right, y down, the centre of the top-left pixel at (0, 0).
 """
@@ -117,6 +125,9 @@ RESIDUAL_ROUNDS = 3
 #: prediction from pixel differences marks a crowded pattern, whose noise is then measured
 #: again on the residual.
 CROWDED_NOISE = 1.1
+#: In a crowded pattern the band-passed noise per mesh is capped at this multiple of the
+#: white-noise prediction from pixel differences.
+CAP_NOISE = 1.1
 
 
 @dataclass(frozen=True, eq=False)
@@ -554,6 +565,7 @@ class _Front:
     b: int
     filtered: np.ndarray | None = None  # the band-passed image (padded)
     up: Any = None  # the _Upsampler from meshes to pixels
+    capped: bool = False  # crowded: s_noise capped by the pixel-difference prediction
 
 
 def _front(
@@ -627,6 +639,7 @@ def _front(
         np.subtract(smooth, background, out=smooth)
         bg, s_med, s_noise, raw_noise = bg0, zero, noise, noise
         pixel_var = np.full(bg0.shape, np.nan)
+        capped = False
     else:
         ok = ok_sub & ~_sources(s_sub, zero, noise, 2.5, sigma, m)
         plane, wt = _mesh_planes(img_sub, ok & ~sat[::2, ::2] if any_sat else ok, m, b, bg0, pix_noise0)
@@ -667,12 +680,40 @@ def _front(
         for _ in range(2):  # the second pass clips at 3 of its own sigma
             spread = _pooled_noise(diff, both, np.where(np.isfinite(spread), spread, np.inf), m, pool=False)
         pixel_var = spread**2 / 2
+        s_noise, capped = _cap_noise(s_noise, pixel_var, sigma, usable_mesh, (h, w), b)
 
     rows, cols, stat, peak = _maxima(smooth, s_med, s_noise, valid, all_valid, threshold, b, (h, w))
     return _Front(filled=filled, background=background, valid=valid, saturated=sat, bg_mesh=bg,
                   s_med=s_med, s_noise=s_noise, raw_noise=raw_noise, pixel_var=pixel_var, mesh_fraction=w0,
                   usable_mesh=usable_mesh,
-                  rows=rows, cols=cols, stat=stat, peak=peak, b=b, filtered=smooth, up=up)
+                  rows=rows, cols=cols, stat=stat, peak=peak, b=b, filtered=smooth, up=up, capped=capped)
+
+
+def _cap_noise(s_noise: np.ndarray, pixel_var: np.ndarray, sigma: float, usable_mesh: np.ndarray,
+               shape: tuple[int, int], b: int) -> tuple[np.ndarray, bool]:
+    """Cap the band-passed noise per mesh at what the pixel-to-pixel differences predict.
+
+    The wings of spots inflate the spread of the band-passed image in crowded meshes, but
+    barely the differences of pixels two apart, whose variance is twice the pixel variance
+    for white noise; through the filter's noise gain (:func:`gaussian_kernel_norm2`) that
+    predicts the band-passed noise. The pattern counts as crowded when the band-passed
+    noise, median over the meshes, exceeds ``CROWDED_NOISE`` times the prediction; then
+    each mesh is capped at ``CAP_NOISE`` times the prediction (smoothed over meshes like
+    the noise itself). Only meshes at least two meshes inside the image take part: near
+    the border the reflecting filter and the 3 x 3 pooling raise the band-passed noise above
+    the white-noise gain. Returns the noise and whether it was capped.
+    """
+    hb, wb = s_noise.shape
+    inner = np.zeros((hb, wb), dtype=bool)
+    inner[2:shape[0] // b - 2, 2:shape[1] // b - 2] = True
+    expected = np.sqrt(pixel_var * gaussian_kernel_norm2(sigma))
+    known = usable_mesh & np.isfinite(expected) & (expected > 0)
+    if not (known & inner).any():
+        return s_noise, False
+    if float(np.median(s_noise[known & inner] / expected[known & inner])) <= CROWDED_NOISE:
+        return s_noise, False
+    expected = _smooth_meshes(np.where(known, expected, 0.0), known.astype(float))
+    return np.where(inner, np.minimum(s_noise, CAP_NOISE * expected), s_noise), True
 
 
 def _maxima(smooth: np.ndarray, s_med: np.ndarray, s_noise: np.ndarray, valid: np.ndarray, all_valid: bool,
@@ -1076,11 +1117,17 @@ def _residual_pass(front: _Front, res: dict, shape, sigma: float, threshold: flo
     resid = front.filtered - fm
     # crowding: where the band-passed noise exceeds what the pixel-to-pixel noise predicts
     # for white noise, the wings of the spots inflate it; measure it again on the residual
+    # (not above the cap of step 3 where that applies)
     expected = np.sqrt(front.pixel_var * gaussian_kernel_norm2(sigma))
-    ratio = front.s_noise / expected
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = front.s_noise / expected
     ratio = ratio[front.usable_mesh & np.isfinite(ratio)]
-    crowded = ratio.size > 0 and float(np.median(ratio)) > CROWDED_NOISE
-    s_noise = _residual_noise(front, resid, fm, threshold, sigma) if crowded else front.s_noise
+    crowded = front.capped or (ratio.size > 0 and float(np.median(ratio)) > CROWDED_NOISE)
+    s_noise = front.s_noise
+    if crowded:
+        s_noise = _residual_noise(front, resid, fm, threshold, sigma)
+        if front.capped:
+            s_noise = np.minimum(s_noise, front.s_noise)
     all_valid = bool(front.valid.all())
     rows, cols, stat, peak = _maxima(resid, front.s_med, s_noise, front.valid, all_valid,
                                      threshold,
