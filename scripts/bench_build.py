@@ -26,7 +26,7 @@ import sys
 import time
 import tracemalloc
 
-from benchtools import median_time
+from benchtools import median_time, print_rows
 
 
 def main(quick: bool = False) -> list[dict]:
@@ -119,7 +119,4 @@ def main(quick: bool = False) -> list[dict]:
 
 
 if __name__ == "__main__":
-    quick = "--quick" in sys.argv
-    for row in main(quick=quick):
-        print(f"{row['benchmark']}\n    measured {row['measured']}; baseline {row['baseline']}; "
-              f"ratio {row['ratio']:.2f} (goal {row['goal']})")
+    print_rows(main(quick="--quick" in sys.argv[1:]))

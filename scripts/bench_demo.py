@@ -19,11 +19,13 @@ Rows:
 
 from __future__ import annotations
 
-import argparse
 import shutil
+import sys
 import tempfile
 import time
 from pathlib import Path
+
+from benchtools import print_rows
 
 
 def _baseline() -> float:
@@ -78,9 +80,4 @@ def main(quick: bool = False) -> list[dict]:
 
 
 if __name__ == "__main__":
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="fast (test) mode")
-    args = parser.parse_args()
-    for row in main(quick=args.quick):
-        print(f"{row['benchmark']}: {row['measured']}; baseline {row['baseline']}; "
-              f"ratio {row['ratio']:.3g}; goal: {row['goal']}")
+    print_rows(main(quick="--quick" in sys.argv[1:]))

@@ -27,6 +27,7 @@ from pathlib import Path
 
 import numpy as np
 from benchtools import best_time_and_result as timed
+from benchtools import print_rows
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -174,7 +175,4 @@ def main(quick: bool = False) -> list[dict]:
 
 
 if __name__ == "__main__":
-    quick = "--quick" in sys.argv[1:]
-    for row in main(quick=quick):
-        print(f"{row['benchmark']}\n    measured {row['measured']}\n    baseline {row['baseline']}\n"
-              f"    ratio {row['ratio']:.3g}   goal {row['goal']}")
+    print_rows(main(quick="--quick" in sys.argv[1:]))

@@ -30,6 +30,8 @@ from __future__ import annotations
 import sys
 import time
 
+from benchtools import print_rows
+
 
 def _case(quick: bool = False):
     from surfgeo.lattice import Lattice2D
@@ -129,9 +131,4 @@ def main(quick: bool = False) -> list[dict]:
 
 
 if __name__ == "__main__":
-    quick = "--quick" in sys.argv[1:]
-    for row in main(quick=quick):
-        print(
-            f"{row['benchmark']}\n    measured {row['measured']}, baseline {row['baseline']}, "
-            f"ratio {row['ratio']:.3g}, goal {row['goal']}"
-        )
+    print_rows(main(quick="--quick" in sys.argv[1:]))

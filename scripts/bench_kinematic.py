@@ -17,10 +17,10 @@ Run ``python scripts/bench_kinematic.py [--quick]``; ``main(quick)`` returns the
 
 from __future__ import annotations
 
-import argparse
+import sys
 
 import numpy as np
-from benchtools import best_of_interleaved
+from benchtools import best_of_interleaved, print_rows
 
 from surfgeo.diffraction.kinematic import kinematic_intensities, kinematic_iv, scattering_geometry
 
@@ -130,13 +130,8 @@ def bench_sweep(quick: bool) -> dict:
 
 def main(quick: bool = False) -> list[dict]:
     rows = [bench_domains(quick), bench_sweep(quick)]
-    for row in rows:
-        print(f"{row['benchmark']}: {row['measured']} vs {row['baseline']} -> ratio {row['ratio']:.3g} "
-              f"(goal {row['goal']})")
     return rows
 
 
 if __name__ == "__main__":
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="small sizes (a smoke run)")
-    main(parser.parse_args().quick)
+    print_rows(main(quick="--quick" in sys.argv[1:]))

@@ -24,7 +24,7 @@ import sys
 from pathlib import Path
 
 import numpy as np
-from benchtools import best_time
+from benchtools import best_time, print_rows
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
@@ -174,7 +174,4 @@ def main(quick: bool = False) -> list[dict]:
 
 
 if __name__ == "__main__":
-    quick = "--quick" in sys.argv[1:]
-    for row in main(quick=quick):
-        print(f"{row['benchmark']}\n    measured {row['measured']}\n    baseline {row['baseline']}\n"
-              f"    ratio {row['ratio']:.3g}   goal: {row['goal']}")
+    print_rows(main(quick="--quick" in sys.argv[1:]))

@@ -23,11 +23,11 @@ Run ``python scripts/bench_pattern.py [--quick]``; ``main(quick)`` returns the r
 
 from __future__ import annotations
 
-import argparse
+import sys
 
 import numpy as np
 from ase import Atoms
-from benchtools import best_of_interleaved
+from benchtools import best_of_interleaved, print_rows
 
 from surfgeo.diffraction.kinematic import scattering_geometry
 from surfgeo.diffraction.pattern import slab_pattern
@@ -216,13 +216,8 @@ def bench_outputs(quick: bool) -> dict:
 
 def main(quick: bool = False) -> list[dict]:
     rows = [bench_pattern(quick), bench_sweep(quick), bench_screen(quick), bench_outputs(quick)]
-    for row in rows:
-        print(f"{row['benchmark']}: {row['measured']} vs {row['baseline']} -> ratio {row['ratio']:.3g} "
-              f"(goal {row['goal']})")
     return rows
 
 
 if __name__ == "__main__":
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="small sizes (a smoke run)")
-    main(parser.parse_args().quick)
+    print_rows(main(quick="--quick" in sys.argv[1:]))

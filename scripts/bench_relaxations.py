@@ -24,7 +24,7 @@ import warnings
 from pathlib import Path
 
 import numpy as np
-from benchtools import best_time
+from benchtools import best_time, print_rows
 
 
 def _case(tmp: Path, size: tuple[int, int, int], amplitude: float, noise: float, tag: str):
@@ -116,7 +116,4 @@ def main(quick: bool = False) -> list[dict]:
 
 
 if __name__ == "__main__":
-    quick = "--quick" in sys.argv[1:]
-    for row in main(quick=quick):
-        print(f"{row['benchmark']}\n  measured: {row['measured']}\n  baseline: {row['baseline']}\n"
-              f"  ratio: {row['ratio']:.2f}   goal: {row['goal']}")
+    print_rows(main(quick="--quick" in sys.argv[1:]))

@@ -20,7 +20,9 @@ Timings are the median of several repetitions after one warm-up call (both sides
 
 from __future__ import annotations
 
-from benchtools import median_time
+import sys
+
+from benchtools import median_time, print_rows
 
 
 def main(quick: bool = False) -> list[dict]:
@@ -118,8 +120,4 @@ def main(quick: bool = False) -> list[dict]:
 
 
 if __name__ == "__main__":
-    import sys
-
-    for row in main(quick="--quick" in sys.argv[1:]):
-        print(f"{row['benchmark']}\n    measured {row['measured']}\n    baseline {row['baseline']}\n"
-              f"    ratio {row['ratio']:.3f}   goal {row['goal']}")
+    print_rows(main(quick="--quick" in sys.argv[1:]))
